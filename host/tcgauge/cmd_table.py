@@ -1,11 +1,21 @@
 """`tcgauge table ...`: verbs on gas table files.
 
-`tcgauge table check FILE` reads a table file, verifies its CRC and every
-table rule, and prints a short summary (exit 0); a bad file gives one line
-on stderr naming the problem and exit status 2. The `table` group is where
-later verbs (show, plot, derive, push, pull, list) are added: one
-sub-parser each in `register`.
+- `check FILE`: verify the CRC and every table rule, print a short summary.
+- `show FILE [--unit U]`: metadata, range, checksum and every point (EMF and
+  pressure, plus the band's limits when a sidecar `*.band.json` is beside it).
+- `plot FILE... -o out.png [--unit U]`: EMF against pressure, tables overlaid,
+  bands shaded (tcgauge.tableplot).
+- `derive N2FILE --gas G -o out.json [--profile P]`: a table for another gas
+  from an N2 table through the fitted tube model (tcgauge.derive), with its
+  band sidecar; refuses to overwrite without --force.
+
+A bad file or argument gives one line on stderr and exit status 2 (a
+TcgaugeError, turned into that line by tcgauge.cli). The `table` group is
+where later verbs (push, pull, list) are added: one sub-parser each in
+`register`.
 """
+
+import os
 
 from gaugecore import tablefile, units
 
@@ -47,6 +57,102 @@ def _cmd_check(args):
     return 0
 
 
+def _unit(name):
+    try:
+        units.from_pa(1.0, name)
+    except ValueError as exc:
+        raise TcgaugeError(str(exc))
+    return name.upper()
+
+
+def _sidecar(path, crc):
+    """The band beside table file `path` (None if there is none). Raises TcgaugeError if stale."""
+    from tcgauge import band
+
+    bpath = band.band_path(path)
+    if not os.path.exists(bpath):
+        return None
+    return band.load(bpath, crc)
+
+
+def _band_path(path):
+    from tcgauge import band  # imported late: numpy is not needed by `check`
+
+    return band.band_path(path)
+
+
+def show_lines(path, table, crc, unit="TORR", band=None):
+    """Plain-text lines listing a table: metadata, range, checksum, points."""
+    sym = units.SYMBOL[unit]
+    lines = summary(path, table, crc)
+    lines.append("  invalid above %.6g mV (margin %.4g) or below %.6g mV"
+                 % (table.emf_invalid_above_mv, table.invalid_margin, -table.noise_mv))
+    pa = unit != "PA"  # a second column in pascals unless the unit is already Pa
+    head = "  %3s  %10s  %12s" % ("#", "EMF mV", "p " + sym) + ("  %12s" % "p Pa" if pa else "")
+    if band is not None:
+        lines.append("  band from %s: %s" % (os.path.basename(_band_path(path)), band.summary()))
+        head += "  %12s  %12s" % ("lower " + sym, "upper " + sym)
+    lines.append(head)
+    for i, (e, p) in enumerate(table.points):
+        row = "  %3d  %10.5f  %12.5g" % (i, e, units.from_pa(p, unit)) + ("  %12.5g" % p if pa else "")
+        if band is not None:
+            row += "  %12.5g  %12.5g" % (units.from_pa(band.lower_pa[i], unit),
+                                         units.from_pa(band.upper_pa[i], unit))
+        lines.append(row)
+    return lines
+
+
+def _cmd_show(args):
+    unit = _unit(args.unit)
+    table, crc = check_file(args.file)
+    print("\n".join(show_lines(args.file, table, crc, unit, _sidecar(args.file, crc))))
+    return 0
+
+
+def _cmd_plot(args):
+    from tcgauge import tableplot
+
+    unit = _unit(args.unit)
+    tables, bands = [], []
+    for path in args.files:
+        table, crc = check_file(path)
+        tables.append(table)
+        bands.append(_sidecar(path, crc))
+    try:
+        tableplot.plot_tables(args.output, tables, bands, unit)
+    except OSError as exc:
+        raise TcgaugeError("cannot write %s: %s" % (args.output, exc.strerror or exc))
+    print("%s: %d table(s)%s" % (args.output, len(tables),
+                                 ", bands shaded" if any(b is not None for b in bands) else ""))
+    return 0
+
+
+def _cmd_derive(args):
+    from tcgauge import derive
+
+    unit = _unit(args.unit)
+    n2, _ = check_file(args.file)
+    p_min = None if args.p_min is None else units.to_pa(args.p_min, unit)
+    p_max = None if args.p_max is None else units.to_pa(args.p_max, unit)
+    if not args.force:
+        for target in (args.output, _band_path(args.output)):
+            if os.path.exists(target):
+                raise TcgaugeError("%s exists; use --force to overwrite" % target)
+    d = derive.derive_table(n2, args.gas, profile=args.profile, p_min_pa=p_min, p_max_pa=p_max,
+                            points=args.points, t_wall_c=args.wall_c)
+    bpath = derive.write(d, args.output, force=args.force)
+    out = d.fit.summary()
+    out.append("derived %s" % d.table.describe())
+    out.append(d.band.summary())
+    out.append("wrote %s and %s" % (args.output, bpath))
+    for w in d.warnings:
+        out.append("warning: %s" % w)
+    if not d.warnings:
+        out.append("no warnings: the requested range lies where the derivation is well supported")
+    print("\n".join(out))
+    return 0
+
+
 def register(subparsers):
     """Add the `table` verb group to the top-level sub-parsers."""
     parser = subparsers.add_parser("table", help="check and manage gas table files")
@@ -54,6 +160,31 @@ def register(subparsers):
     check = verbs.add_parser("check", help="verify a table file (CRC and rules) and summarise it")
     check.add_argument("file", metavar="FILE", help="table file (tcgauge-table JSON)")
     check.set_defaults(func=_cmd_check)
+
+    show = verbs.add_parser("show", help="list a table file's points, metadata and checksum")
+    show.add_argument("file", metavar="FILE", help="table file (tcgauge-table JSON)")
+    show.add_argument("--unit", default="TORR", help="pressure unit: PA, TORR, MBAR or MICRON")
+    show.set_defaults(func=_cmd_show)
+
+    plot = verbs.add_parser("plot", help="plot tables (EMF against pressure) to a PNG")
+    plot.add_argument("files", metavar="FILE", nargs="+", help="table files")
+    plot.add_argument("-o", "--output", required=True, help="PNG file to write")
+    plot.add_argument("--unit", default="TORR", help="pressure unit: PA, TORR, MBAR or MICRON")
+    plot.set_defaults(func=_cmd_plot)
+
+    der = verbs.add_parser("derive", help="derive a table for another gas from an N2 table")
+    der.add_argument("file", metavar="N2FILE", help="measured N2 table file of the tube")
+    der.add_argument("--gas", required=True, help="target gas: He, Ar, H2, CO2, H2O or air")
+    der.add_argument("-o", "--output", required=True, help="derived table file to write")
+    der.add_argument("--profile", default="wren-demo", help="base tube profile of the model")
+    der.add_argument("--p-min", type=float, default=None, help="lowest pressure, in --unit")
+    der.add_argument("--p-max", type=float, default=None, help="highest pressure, in --unit")
+    der.add_argument("--unit", default="TORR", help="unit of --p-min/--p-max")
+    der.add_argument("--points", type=int, default=None, help="points (default: as the N2 table)")
+    der.add_argument("--wall-c", type=float, default=22.0,
+                     help="wall temperature of the N2 measurement, C (default 22)")
+    der.add_argument("--force", action="store_true", help="overwrite existing output files")
+    der.set_defaults(func=_cmd_derive)
 
     def _no_verb(args):
         parser.print_help()
