@@ -14,7 +14,8 @@ heater-open             regulator state "compliance" (the regulator     yes    l
                         R > open_factor * heater_ohm_max for 2 checks
 adc-failure             read raised (ok False) for `persist_n` (2)      no     self-clears after
                         samples, or the same raw value `stuck_n` (8)           `good_n` (5) good samples
-                        times in a row (stuck converter)
+                        times in a row (stuck converter; not counted
+                        while tc-open holds the input at its rail)
 tc-open                 EMF >= emf_rail_mv or > emf_max_mv (far above   no     self-clears after 5 good
                         any physical value) for 2 samples
 tc-short                |EMF| < tc_short_mv (0.1 mV) while heater_on,   no     self-clears after 5 good
@@ -260,7 +261,11 @@ class FaultMonitor:
         """Converter: ok False when the read raised; raw (optional) for stuck detection."""
         bad = not ok
         if ok and raw is not None:
-            if raw == self._last_raw:
+            if self._mask & (1 << _TO):
+                # an open thermocouple rails the input, so the converter reads one
+                # code: that is tc-open's signature, not a stuck converter
+                self._same_n = 0
+            elif raw == self._last_raw:
                 self._same_n += 1
             else:
                 self._same_n = 1

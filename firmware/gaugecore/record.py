@@ -163,7 +163,7 @@ def decode(line):
     fault = parts[7] or None
     if fault is not None:
         for c in fault:
-            if not ("a" <= c <= "z" or "0" <= c <= "9" or c == "_"):
+            if not ("a" <= c <= "z" or "0" <= c <= "9" or c == "_" or c == "-"):
                 raise ValueError("record fault name has a bad character")
     if (state == states.INVALID or state == states.FAULT) and pressure_pa is not None:
         raise ValueError("record has a pressure for state %s" % state)

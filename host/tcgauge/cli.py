@@ -17,6 +17,14 @@ from tcgauge.errors import TcgaugeError
 # Modules under tcgauge/ that each add one verb (see module docstring).
 VERB_MODULES = [
     "tcgauge.cmd_table",
+    "tcgauge.cmd_live",
+    "tcgauge.cmd_log",
+    "tcgauge.cmd_export",
+    "tcgauge.cmd_plot",
+    "tcgauge.cmd_demo",
+    "tcgauge.cmd_sim",
+    "tcgauge.cmd_deploy",
+    "tcgauge.cmd_info",
 ]
 
 

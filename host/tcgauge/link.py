@@ -15,6 +15,7 @@ from gaugecore import record
 from gaugecore.scpi import LineFramer
 
 from tcgauge.errors import TcgaugeError
+import tcgauge.urlhandler  # noqa: F401,E402  (registers the sim:// port URL with pyserial)
 
 log = logging.getLogger(__name__)
 
@@ -104,7 +105,8 @@ class Link:
     def poll(self):
         """Read whatever is waiting, without blocking longer than one port read."""
         while self._read_some():
-            pass
+            if not getattr(self.port, "in_waiting", 1):
+                break  # a streaming device never goes quiet: stop when nothing is waiting
 
     def _read_some(self):
         waiting = getattr(self.port, "in_waiting", 0) or 1

@@ -149,6 +149,19 @@ def test_tc_open_at_adc_rail_self_clears_after_5_good():
     assert mon.active is None  # the 5th good sample clears it
 
 
+def test_railed_open_thermocouple_stays_tc_open_not_a_stuck_converter():
+    # An open thermocouple rails the input, so the converter returns one code for as
+    # long as the fault lasts: it must keep reading tc-open, not turn into adc-failure.
+    mon = FaultMonitor(emf_rail_mv=78.1)
+    t = warm(mon)
+    for _ in range(30):  # 3 s at 10 Hz, the channel's order: check_adc, then check_emf
+        mon.check_adc(True, t, 78125.0)
+        mon.check_emf(78.1, True, t)
+        t += DT
+    assert mon.active == "tc-open"
+    assert mon.faults == ("tc-open",)
+
+
 def test_tc_open_far_above_any_physical_emf():
     mon = FaultMonitor()
     t0 = warm(mon)
