@@ -1,0 +1,1 @@
+"""Chip drivers and the adapters that present them to gaugecore (DEVELOPERS.md, "Interfaces the core sees")."""
