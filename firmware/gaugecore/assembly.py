@@ -37,6 +37,7 @@ def _boot_table(catalogue, store, n, name, default_name, tc_type, notes):
     configured catalogue table (else the default one) installed.
     """
     slot = "ch%d" % n
+    start = len(notes)
     table, fault = store.boot(slot, tc_type)
     if table is not None:
         if fault:
@@ -55,7 +56,7 @@ def _boot_table(catalogue, store, n, name, default_name, tc_type, notes):
             if pick != name:
                 notes.append("channel %d: table %s not found, using %s" % (n, name, pick))
             return table, pick
-    why = notes[-1] if notes else "none in the catalogue"
+    why = notes[-1] if len(notes) > start else "no table named %s in the catalogue" % name
     raise OSError("channel %d: no usable table on the device (%s)" % (n, why))
 
 
@@ -67,7 +68,8 @@ def _part(hw, name):
 
 
 def build(hardware, clock, catalogue, store, limits, serial="0", relays=None, default_table=None,
-          tc_type="K", monitor=None, channel_options=None, sleep_ms=None, rate_hz=None):
+          tc_type="K", monitor=None, channel_options=None, sleep_ms=None, rate_hz=None,
+          rate_max_hz=None):
     """Channels, controller and facade from the hardware -> gaugecore.device.Device.
 
     monitor: per channel keyword dict for FaultMonitor (the tube's
@@ -75,7 +77,9 @@ def build(hardware, clock, catalogue, store, limits, serial="0", relays=None, de
     for Channel (settle_ms, mode, average_n, ...); sleep_ms: the
     controller's sleep coroutine (default asyncio's). default_table: a
     catalogue name, or a list with one per channel (default: the first
-    name); rate_hz: the default sample rate (else device.DEFAULT_RATE_HZ).
+    name); rate_hz: the default sample rate (else device.DEFAULT_RATE_HZ, or
+    rate_max_hz if that is lower); rate_max_hz: the fastest rate the hardware
+    sustains (a board's converter time; default device.RATE_MAX_HZ).
     """
     n = len(hardware)
     if n < 1:
@@ -98,8 +102,11 @@ def build(hardware, clock, catalogue, store, limits, serial="0", relays=None, de
     for i in range(n):
         defaults["heater_ma"][i] = float(limits[i]["nominal_ma"])
         defaults["tables"][i] = per_channel[i]
+    rate_max = D.RATE_MAX_HZ if rate_max_hz is None else float(rate_max_hz)
     if rate_hz is not None:
         defaults["rate_hz"] = float(rate_hz)
+    elif defaults["rate_hz"] > rate_max:
+        defaults["rate_hz"] = rate_max
     cfg, notes = D.load(store, n, len(relays), defaults)
     channels = []
     for i in range(n):
@@ -112,5 +119,9 @@ def build(hardware, clock, catalogue, store, limits, serial="0", relays=None, de
         channels.append(Channel(i, _part(hw, "tc"), _part(hw, "cj"), _part(hw, "heater"),
                                 _part(hw, "relays"), table, limits[i],
                                 heater_ma=limits[i]["nominal_ma"], monitor=mon, **opts))
+    for ch in channels:  # a table without the wall model: say which fallback the channel took
+        if ch.compensation_note:
+            notes.append("channel %d: %s" % (ch.index + 1, ch.compensation_note))
     ctl = Controller(channels, clock, sleep_ms=sleep_ms)
-    return D.Device(channels, ctl, store, catalogue, relays, limits, cfg, defaults, serial, notes)
+    return D.Device(channels, ctl, store, catalogue, relays, limits, cfg, defaults, serial, notes,
+                    rate_max_hz=rate_max)

@@ -7,8 +7,9 @@ due; it never sleeps):
                  that demands it switches the heater off
   sampler        +I / -I readings averaged (gaugecore.sampler): pickup gone
   faults         check_adc, check_cj, check_emf, check_fresh
-  compensation   ColdJunction.refer(emf_mv, t_cj_c): EMF referred to the
-                 table's reference temperature (Table.ref_c); t_cj_c is the
+  compensation   RiseReferral.refer(emf_mv, t_cj_c): the table's EMF for the
+                 filament's rise above the wall, carried to the table's wall
+                 and reference temperatures (below); t_cj_c is the
                  junction sensor low-passed (cj_filter_ms, default 5 s)
   fast response  optional FastResponse (gaugecore.response) on that EMF
   conversion     Table.convert(emf_mv) -> (pressure_pa, state)
@@ -23,18 +24,24 @@ vacuum zero the state is "invalid" (the heater is switched off on purpose).
 profile_limits: dict with "nominal_ma", "min_ma", "max_ma" (the tube's safe
 heater range) and "zero_emf_mv" (nominal high-vacuum EMF).
 
-Compensation modes. Default (table_wall_c None): the law of intermediate
-temperatures to the table's ref_c, as the domain notes state it. That
-treats the filament's absolute temperature as the measure of pressure. When
-the junction sensor sits at the tube (its pins follow the wall) and the
-table was made at a known wall temperature, `table_wall_c` selects the
-wall-referred form: hot junction t1 = E^-1(E_meas + E(t_cj)), excess
-t1 - t_cj carried to the table's wall: E(table_wall_c + t1 - t_cj) - E(ref_c).
-On the simulated tube (tools/bench/ambient.py) the default form moves the
-10 mTorr reading by -2.3 %/K of ambient, the wall-referred one by +1.2 %/K,
-the uncompensated EMF by +1.1 %/K: what remains is the tube's own heat
-balance (radiation and gas conduction depend on the wall temperature),
-which no junction compensation removes.
+Compensation (`compensation`). Default RISE: gaugecore.coldjunction.
+RiseReferral. A thermocouple gauge measures the filament's rise above its
+envelope, and the cold junction (the tube pins) sits at about the wall
+temperature, so t_cj stands for the wall: filament T1 = E^-1(E_meas +
+E(t_cj)), rise dT = T1 - t_cj, corrected for the wall's effect on the heat
+balance with the table's per-point slope k = d ln(dT)/d T_wall,
+dT_ref = dT exp(-k (t_cj - t_wall_table)), then the table's EMF
+E(t_wall_table + dT_ref) - E(ref_c) (derivation in gaugecore.coldjunction).
+A table without slopes gets plain wall referral to its wall temperature; a
+version-1 table without a wall temperature gets plain wall referral to
+coldjunction.ASSUMED_WALL_C (22 C); `compensation_note` then says so (the
+device puts it in its error queue at boot). `table_wall_c` overrides the
+table's wall temperature. ITS90: the law of intermediate temperatures to the
+table's ref_c alone, kept for comparison: it adds the junction's own EMF
+change to a sensor that measures a rise above the wall, so it moves the
+reading the wrong way (tools/bench/ambient.py, 10 mTorr on the simulated
+tube: -2.3 %/K, against +1.1 %/K uncompensated and +0.06 %/K with RISE, most
+of which is the electronics' own drift: -0.01 %/K with it switched off).
 """
 
 from gaugecore import states
@@ -46,6 +53,8 @@ HEATER_TICK_MS = 20
 # dominate the EMF noise, so the compensation uses it low-passed.
 CJ_FILTER_MS = 5000
 CJ_ANCHOR_C = 0.05  # re-evaluate the reference function when t_cj moves this far
+RISE = "rise"  # compensation modes (module docstring)
+ITS90 = "its90"
 
 
 def _coldjunction(table):
@@ -55,6 +64,16 @@ def _coldjunction(table):
     except ImportError:  # image without the module: the same law, inline
         return _Referral(table.tc_type, table.ref_c)
     return ColdJunction(table.tc_type, table.ref_c)
+
+
+def _rise_referral(table, wall_c):
+    """(RiseReferral or None, note) for a table."""
+    try:
+        from gaugecore.coldjunction import RiseReferral
+    except ImportError:
+        return None, "no rise referral in this image: ITS-90 referral to the table's ref_c"
+    r = RiseReferral(table, wall_c)
+    return r, r.note
 
 
 class _Referral:
@@ -74,8 +93,10 @@ class _Referral:
 class HeaterPort:
     """What the sampler sees of the heater: polarity and off windows.
 
-    Wraps the driver given to the regulator so that an off window can put
-    back exactly the last command.
+    In off-window mode the regulator drives the heater through this port, so
+    that an off window can put back exactly the last command; in the other
+    modes the regulator drives the driver itself (the port then only passes
+    calls through, for code that holds `channel.port`).
     """
 
     def __init__(self, driver):
@@ -157,6 +178,7 @@ class Channel:
         heater_tick_ms=HEATER_TICK_MS,
         cj_filter_ms=CJ_FILTER_MS,
         table_wall_c=None,
+        compensation=RISE,
     ):
         for key in ("nominal_ma", "min_ma", "max_ma", "zero_emf_mv"):
             if key not in profile_limits:
@@ -169,8 +191,12 @@ class Channel:
         if regulator is None:
             from gaugecore.heater import HeaterRegulator
 
+            # the port is needed only to put the command back after an off
+            # window; otherwise the regulator drives the driver itself (two
+            # calls less per tick and per reversal, the same driver calls)
             regulator = HeaterRegulator(
-                self.port, heater_ma, profile_limits["min_ma"], profile_limits["max_ma"]
+                self.port if mode == OFF_WINDOW else heater_driver,
+                heater_ma, profile_limits["min_ma"], profile_limits["max_ma"]
             )
         self.regulator = regulator
         self.port.regulator = regulator
@@ -207,7 +233,11 @@ class Channel:
         if cj_filter_ms < 0:
             raise ValueError("cold-junction filter time must be >= 0 ms")
         self.cj_filter_ms = cj_filter_ms
+        if compensation != RISE and compensation != ITS90:
+            raise ValueError("compensation must be %r or %r" % (RISE, ITS90))
+        self.compensation = compensation
         self.table_wall_c = table_wall_c
+        self._set_referral(table)
         self._cj_f = None  # filtered junction temperature
         self._cj_t0 = None  # anchor of the linearised E(t_cj)
         self._cj_e0 = 0.0
@@ -247,7 +277,14 @@ class Channel:
             raise ValueError("table is for type %s, this channel is type %s" % (table.tc_type, self.table.tc_type))
         self.table = table
         self.coldjunction = _coldjunction(table)
+        self._set_referral(table)
         self._cj_t0 = None
+
+    def _set_referral(self, table):
+        self.referral = None
+        self.compensation_note = None
+        if self.compensation == RISE:
+            self.referral, self.compensation_note = _rise_referral(table, self.table_wall_c)
 
     def apply_zero(self, result):
         """Use a stored ZeroResult: heater current and response parameters."""
@@ -292,7 +329,7 @@ class Channel:
     def next_ms(self):
         """Earliest time something is due (heater tick or sampler)."""
         a = self._heater_due
-        b = self.sampler.next_ms
+        b = self.sampler.due_ms
         if a is None:
             return b
         if b is None or a - b < 0:
@@ -311,10 +348,8 @@ class Channel:
                 self._heater_due = now_ms + self.heater_tick_ms
             if not self.port.blanked:
                 reg.update(now_ms)
-                v = reg.voltage_v
-                if v is not None and v < 0.0:
-                    v = -v  # read_v() is signed with the current; R = |V| / |I|
-                mon.check_heater(reg.current_ma, reg.target_ma, v, reg.state, now_ms)
+                # voltage_v is signed with the current: check_heater takes |V|
+                mon.check_heater(reg.current_ma, reg.target_ma, reg.voltage_v, reg.state, now_ms)
             if mon.heater_must_stop:
                 if reg.state != "off":
                     reg.stop()
@@ -322,12 +357,18 @@ class Channel:
             elif self._fault_stopped:
                 self._fault_stopped = False
                 reg.start()
-        new = self.sampler.step(now_ms)
+        new = False
+        s = self.sampler
+        if now_ms - s.due_ms >= 0:  # started with the channel, so never None here
+            new = s.step(now_ms)
         if new:
             self._on_sample(now_ms)  # check_emf in there marks the data fresh
         else:
-            mon.check_fresh(now_ms)
-        if mon.active is not None and (self.state != states.FAULT or self.fault != mon.active):
+            f = mon.fresh_ms  # check_fresh only acts when unset or overdue
+            if f is None or now_ms - f > mon.stale_ms:
+                mon.check_fresh(now_ms)
+        a = mon.active
+        if a is not None and (self.state != states.FAULT or self.fault != a):
             self._set_fault(now_ms)
             self._update_setpoints(now_ms)
         return new
@@ -338,8 +379,11 @@ class Channel:
         self.pressure_pa = None
 
     def _update_setpoints(self, now_ms):
+        p = self.pressure_pa
+        st = self.state
+        f = self.fault
         for sp in self.setpoints:
-            sp.update(self.pressure_pa, self.state, now_ms, self.fault)
+            sp.update(p, st, now_ms, f)
 
     def _on_sample(self, now_ms):
         s = self.sampler
@@ -393,15 +437,15 @@ class Channel:
                 2.0 * CJ_ANCHOR_C
             )
             self._cj_t0 = t0
-        if self.table_wall_c is None:
-            emf_ref = emf_mv + self._cj_e0 + self._cj_s * (t_cj - t0)
+        # E(t_cj) - E(ref_c), linear about the anchor
+        e_cj_rel = self._cj_e0 + self._cj_s * (t_cj - t0)
+        rr = self.referral
+        if rr is None:
+            emf_ref = emf_mv + e_cj_rel
         else:
-            # wall-referred: the junction sensor sits at the tube's pins, at the
-            # wall temperature; the filament's excess over the wall is what the
-            # pressure sets, so carry that excess to the table's wall
-            cjc = self.coldjunction
-            t1 = cjc.hot_junction_c(emf_mv, t_cj)
-            emf_ref = cjc.refer(0.0, self.table_wall_c + (t1 - t_cj))
+            # rise referral: the junction sensor sits at the tube's pins, at the
+            # wall temperature (module docstring)
+            emf_ref = rr.refer(emf_mv, t_cj, e_cj_rel + rr.emf_ref_mv)
         self.emf_ref_mv = emf_ref
         z = self.zero
         if z is not None:
@@ -423,8 +467,11 @@ class Channel:
         else:
             emf_use = emf_ref
         self.emf_use_mv = emf_use
-        self.pressure_pa, self.state = self.table.convert(emf_use)
-        self._update_setpoints(now_ms)
+        p, st = self.table.convert(emf_use)
+        self.pressure_pa = p
+        self.state = st
+        for sp in self.setpoints:  # _update_setpoints, inline on the usual path
+            sp.update(p, st, now_ms, None)
 
     def reading(self):
         """(pressure_pa, state, emf_mv, cj_c, heater_ma, time_ms); allocates a tuple."""

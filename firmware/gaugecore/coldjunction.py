@@ -11,9 +11,52 @@ Monograph 175 and IEC 60584-1 (law of intermediate temperatures). Hence
 The second form is what a gauge-tube table needs when its EMFs were
 recorded with the reference junction at some t_ref other than 0 C.
 All EMFs in mV, temperatures in deg C.
+
+Rise referral (`RiseReferral`, the channel's default). A gauge tube does
+not measure the filament's temperature but its rise dT = T1 - T_wall above
+the envelope, which the gas conduction sets. Assumption: the cold junction
+(the couple's legs meet copper at the tube pins) sits at the wall
+temperature, so the junction sensor's t_cj stands for T_wall. The filament
+is then T1 = E^-1(E_meas + E(t_cj)) and the rise dT = T1 - t_cj.
+
+The rise itself depends on the wall at fixed pressure (radiation ~ T^4,
+Knudsen conduction ~ T_wall^-1/2, conductivities with temperature, heater
+resistance). With the table's per-point coefficient
+k(p) = d ln(dT) / d T_wall at fixed pressure, taken at the table's wall
+temperature t_w (gaugecore.table, `rise_slope_per_k`):
+
+    ln dT(p, t_cj) = ln dT(p, t_w) + k(p) (t_cj - t_w) + O((t_cj - t_w)^2 dk/dT_wall)
+    dT_ref = dT(p, t_w) = dT exp(-k (t_cj - t_w))                    (1)
+
+(the exponential is the exact inverse of the first-order model in ln dT;
+1 - k (t_cj - t_w) is its linearisation). k depends on the unknown p; it
+is looked up by table EMF, first at the uncorrected rise, then once more
+at the corrected one (a fixed-point step; k changes slowly with p). The
+table's EMF for that rise, at its wall and its reference temperature, is
+
+    E_table = E(t_w + dT_ref) - E(ref_c)                             (2)
+
+and Table.convert(E_table) gives the pressure. Without slopes (k = 0) this
+is plain wall referral; with t_cj = t_w it is the law of intermediate
+temperatures. The remaining error is the curvature term of (1): on the
+simulated demo tube a 10 K change leaves about 0.15 %/K at 1 mTorr and
+less above (tools/bench/ambient.py).
 """
 
-from gaugecore.thermocouple import emf_mv, temperature_c
+import math
+
+from gaugecore.thermocouple import emf_mv, seebeck_uv_per_k, temperature_c
+
+# Wall temperature assumed for a table that does not state one (table file
+# version 1): the project's set-up temperature (tcgauge.tubefit.DEFAULT_WALL_C).
+ASSUMED_WALL_C = 22.0
+_NAN = float("nan")
+# Per sample, E^-1 and E are followed linearly about an anchor and evaluated
+# afresh when the argument leaves it: +/-0.02 mV (~0.5 K) for E^-1 and +/-0.5 K
+# for E. The curvature of E (|dS/dT| <= 0.21 uV/K^2 for types E, J, K, N, T
+# over -50..800 C) leaves under 0.03 uV there, against ~0.2 uV of converter noise.
+INV_ANCHOR_MV = 0.02
+FWD_ANCHOR_C = 0.5
 
 
 def hot_junction_c(tc_type, emf_meas_mv, t_cj_c):
@@ -52,3 +95,90 @@ class ColdJunction:
     def hot_junction_c(self, emf_meas_mv, t_cj_c):
         """Hot-junction temperature in deg C: E^-1(E_meas + E(T_cj))."""
         return temperature_c(self.tc_type, emf_meas_mv + emf_mv(self.tc_type, t_cj_c))
+
+
+class RiseReferral:
+    """Rise referral of a channel's EMF to a table (see the module docstring).
+
+    table: gaugecore.table.Table; its wall_c (else `wall_c`, else
+    ASSUMED_WALL_C) and its rise slopes (if any). `note` says which fallback
+    was taken, or is None when the table carries the whole model.
+    """
+
+    def __init__(self, table, wall_c=None):
+        self.tc_type = table.tc_type
+        self.table = table
+        self.note = None
+        if wall_c is None:
+            wall_c = table.wall_c
+        if wall_c is None:
+            wall_c = ASSUMED_WALL_C
+            self.note = ("table states no wall temperature: plain wall referral to %.6g C assumed"
+                         % ASSUMED_WALL_C)
+        elif table.rise_slope_per_k is None:
+            self.note = ("table has no rise slopes: plain wall referral to its %.6g C wall" % wall_c)
+        self.wall_c = float(wall_c)
+        self.slopes = table.rise_slope_per_k is not None
+        self.emf_ref_mv = emf_mv(self.tc_type, table.ref_c)
+        # E(t_w) - E(ref_c): measured EMF + this ~ table EMF (first k look-up)
+        self._e_wall_mv = emf_mv(self.tc_type, self.wall_c) - self.emf_ref_mv
+        self.rise_c = 0.0  # last rise above the junction, before and after the wall correction
+        self.rise_ref_c = 0.0
+        self._inv_e = None  # anchor of E^-1: EMF, temperature, K per mV
+        self._inv_t = 0.0
+        self._inv_g = 0.0
+        self._fwd_t = None  # anchor of E: temperature, EMF, mV per K
+        self._fwd_e = 0.0
+        self._fwd_s = 0.0
+
+    def _temperature_c(self, e):
+        """E^-1(e), linear about the anchor (INV_ANCHOR_MV)."""
+        e0 = self._inv_e
+        if e0 is not None and -INV_ANCHOR_MV <= e - e0 <= INV_ANCHOR_MV:
+            return self._inv_t + (e - e0) * self._inv_g
+        t = temperature_c(self.tc_type, e)
+        self._inv_g = 1000.0 / seebeck_uv_per_k(self.tc_type, t)
+        self._inv_e = e
+        self._inv_t = t
+        return t
+
+    def _emf_mv(self, t):
+        """E(t), linear about the anchor (FWD_ANCHOR_C)."""
+        t0 = self._fwd_t
+        if t0 is not None and -FWD_ANCHOR_C <= t - t0 <= FWD_ANCHOR_C:
+            return self._fwd_e + (t - t0) * self._fwd_s
+        e = emf_mv(self.tc_type, t)
+        self._fwd_s = 0.001 * seebeck_uv_per_k(self.tc_type, t)
+        self._fwd_t = t
+        self._fwd_e = e
+        return e
+
+    def refer(self, emf_meas_mv, t_cj_c, e_cj_mv=None):
+        """Table EMF (mV) for an EMF measured against a junction at t_cj_c.
+
+        e_cj_mv: E(t_cj) if the caller has it (saves one evaluation). An EMF
+        or temperature outside the thermocouple's range (an open couple on the
+        converter's rail, before the fault monitor has judged it) gives NaN,
+        which Table.convert reads as invalid.
+        """
+        try:
+            return self._refer(emf_meas_mv, t_cj_c, e_cj_mv)
+        except ValueError:
+            return _NAN
+
+    def _refer(self, emf_meas_mv, t_cj_c, e_cj_mv):
+        if e_cj_mv is None:
+            e_cj_mv = emf_mv(self.tc_type, t_cj_c)
+        rise = self._temperature_c(emf_meas_mv + e_cj_mv) - t_cj_c
+        rise_ref = rise
+        wall = self.wall_c
+        if self.slopes:
+            d = t_cj_c - wall
+            table = self.table
+            k = table.rise_slope_at(emf_meas_mv + self._e_wall_mv)
+            rise_ref = rise * math.exp(-k * d)
+            k = table.rise_slope_at(self._emf_mv(wall + rise_ref) - self.emf_ref_mv)
+            rise_ref = rise * math.exp(-k * d)
+        self.rise_c = rise
+        self.rise_ref_c = rise_ref
+        return self._emf_mv(wall + rise_ref) - self.emf_ref_mv

@@ -60,6 +60,9 @@ R_READING = "reading"  # value,UNIT,STATE,FAULT per channel; value NAN when ther
 MAX_LINE = const(256)  # longest accepted input line in bytes, terminator excluded
 ERROR_QUEUE_LEN = const(16)  # SCPI-1999 Vol. 1 21.8: the queue holds at least 2
 MAX_NAME = const(24)  # longest table name
+MAX_TABLE_BYTES = const(16384)  # largest table file an upload may announce (gaugecore.store)
+UPLOAD_TEXT = const(216)  # longest chunk text of an upload (gaugecore.tablexfer)
+MAX_CHUNKS = const(9999)  # highest chunk index
 SCPI_VERSION = "1999.0"  # SYSTem:VERSion? (SCPI-1999 Vol. 1 21.21)
 MAKER = "tcgauge"
 MODEL = "TCGAUGE-2CH"  # our own model name
@@ -123,13 +126,30 @@ COMMANDS = (
     ("STATus:CLEar", (_REQ,), (), "clear_fault", None, None, "clear latched faults of the channels"),
     ("STReam[:STATe]", (("bool",),), (), "set_stream", "stream", R_BOOL,
      "stream records on or off (see record.py)"),
-    # table subsystem: the catalogue now; chunked upload is reserved for later
+    # table subsystem: catalogue, checksums, chunked upload and download (gaugecore.tablexfer)
     ("TABLe:CATalog", (), (), None, "tables", R_STRINGS, "names of the tables on the device"),
+    ("TABLe:CRC", (), (("string", MAX_NAME),), None, "table_crc", R_STRING,
+     "CRC-32 of a catalogue table file, '0x' and 8 hex digits"),
+    ("TABLe:ACTive", (), (_ALL,), None, "active_crc", R_STRING,
+     "CRC-32 of the table each channel converts with"),
+    ("TABLe:UPLoad:BEGin", (("string", MAX_NAME), ("int", 0, 99), ("int", 1, MAX_TABLE_BYTES),
+                            ("string", 10)), (), "upload_begin", None, None,
+     "start an upload: name, channel (0: catalogue only), bytes, CRC-32 of the file"),
+    ("TABLe:UPLoad:DATA", (("int", 0, MAX_CHUNKS), ("string", UPLOAD_TEXT), ("int", 0, 65535)), (),
+     "upload_data", None, None, "one chunk: index, base64 text, CRC-16 of its bytes"),
+    ("TABLe:UPLoad:NEXT", (), (), None, "upload_next", R_INT,
+     "index of the chunk the upload expects next; -1 when none is open"),
+    ("TABLe:UPLoad:END", (), (), None, "upload_end", R_STRING,
+     "check and install the uploaded table; reply: its CRC-32"),
+    ("TABLe:UPLoad:ABORt", (), (), "upload_abort", None, None,
+     "drop the upload in progress (nothing is installed)"),
+    ("TABLe:DOWNload", (), (("string", MAX_NAME), ("int", 0, MAX_CHUNKS)), None, "table_chunk",
+     R_STRINGS, "chunk of a catalogue table: CRC-16 and base64 text; empty past the end"),
 )
 # fmt: on
 
-# Subsystem names kept for later issues: TABLe:UPLoad... (chunked table transfer).
-RESERVED = ("TABLe",)
+# Subsystem names kept for later issues (none at present).
+RESERVED = ()
 
 # Error and event numbers with their standard messages:
 # SCPI-1999 Vol. 1 ch. 21.8 (21.8.9 command errors, 21.8.10 execution errors,

@@ -10,7 +10,9 @@ Streaming is not stored: after power-up the device is quiet until asked.
 Configuration (one dict; the store checks the kind of each top-level key,
 this module checks every element and falls back to the default per item):
   unit        "PA", "TORR", "MBAR" or "MICRON"
-  rate_hz     sample rate of every channel (sample period whole ms)
+  rate_hz     sample rate of every channel (sample period whole ms), at most the
+              device's `rate_max_hz` (what its converters can do; a board's
+              main.py sets it, RATE_MAX_HZ otherwise)
   tables      table name per channel (gaugecore.catalogue)
   heater_ma   heater current setpoint per channel, within the tube's limits
   fast        fast-response estimate per channel
@@ -146,10 +148,20 @@ class Device:
     gaugecore.catalogue.Catalogue. relays: one relay per setpoint.
     limits: per channel the profile limits dict the channel was built with.
     config: the configuration to apply (from `load`), defaults: for *RST.
+    rate_max_hz: the fastest sample rate this hardware sustains; a faster
+    CONFigure:RATE is refused (-222), a faster stored rate is replaced by
+    the default one with a note.
     """
 
     def __init__(self, channels, controller, store, catalogue, relays, limits, config, defaults,
-                 serial="0", notes=()):
+                 serial="0", notes=(), rate_max_hz=RATE_MAX_HZ):
+        if not RATE_MIN_HZ <= rate_max_hz <= RATE_MAX_HZ:
+            raise ValueError("maximum rate %.6g Hz not in %.6g..%.6g Hz"
+                             % (rate_max_hz, RATE_MIN_HZ, RATE_MAX_HZ))
+        if defaults["rate_hz"] > rate_max_hz:
+            raise ValueError("default rate %.6g Hz is above the maximum %.6g Hz"
+                             % (defaults["rate_hz"], rate_max_hz))
+        self.rate_max_hz = float(rate_max_hz)
         self.channels = tuple(channels)
         self.controller = controller
         self.store = store
@@ -167,7 +179,12 @@ class Device:
             self._setpoints.append(Setpoint(relays[n - 1], DEFAULT_SP_ON_PA, DEFAULT_SP_OFF_PA,
                                             name=name))
         self._attached = [None] * len(relays)  # channel index each setpoint is attached to
+        self._upload = None  # gaugecore.tablexfer.Upload while a table upload is open
         self.config = config
+        if config["rate_hz"] > self.rate_max_hz:
+            self._note("config: %.6g Hz is above this board's %.6g Hz, using %.6g Hz"
+                       % (config["rate_hz"], self.rate_max_hz, defaults["rate_hz"]))
+            config["rate_hz"] = defaults["rate_hz"]
         self._apply_all()
 
     # ---------------------------------------------------------------- helpers
@@ -377,8 +394,8 @@ class Device:
         return 1000.0 / self.channels[0].sampler.period_ms
 
     def set_rate_hz(self, hz):
-        if not RATE_MIN_HZ <= hz <= RATE_MAX_HZ:
-            raise C.RangeError("%.6g Hz not in %.6g..%.6g Hz" % (hz, RATE_MIN_HZ, RATE_MAX_HZ))
+        if not RATE_MIN_HZ <= hz <= self.rate_max_hz:
+            raise C.RangeError("%.6g Hz not in %.6g..%.6g Hz" % (hz, RATE_MIN_HZ, self.rate_max_hz))
         self._apply_rate(hz)
         self.config["rate_hz"] = float(hz)
         self._save()
@@ -521,6 +538,113 @@ class Device:
     def tables(self):
         """Names of the tables in the catalogue."""
         return self.catalogue.names()
+
+    # ---------------------------------------------------------------- table transfer
+    # See gaugecore.tablexfer for the chunk coding; the store does every check of
+    # the table itself and the atomic install (the old table stays the fallback).
+    def _catalogue_store(self):
+        """A Store over the catalogue folder: name.json, name.prev.json, name.tmp."""
+        from gaugecore.store import Store
+
+        st = self.store
+        return Store(self.catalogue.folder, st.fs, max_points=st.max_points, max_bytes=st.max_bytes)
+
+    def table_crc(self, name):
+        """CRC-32 text ('0x........') of catalogue table `name` (its file is checked)."""
+        from gaugecore import tablefile
+        from gaugecore.tablexfer import crc32_text
+
+        try:
+            return crc32_text(tablefile.parse(self.catalogue.text(name))[1])
+        except tablefile.TableFileError as exc:
+            raise OSError("table %s: %s" % (name, exc))
+
+    def active_crc(self, n):
+        """CRC-32 text of the table channel n converts with (its canonical file)."""
+        from gaugecore import tablefile
+        from gaugecore.crc32 import crc32
+        from gaugecore.tablexfer import crc32_text
+
+        text = tablefile.dumps(self._ch(n).table)
+        return crc32_text(crc32(text[:text.rfind('"crc32": "')].encode("utf-8")))
+
+    def upload_begin(self, name, channel, nbytes, crc_text):
+        """Open an upload (an unfinished one is dropped): name, channel 0..N, bytes, CRC-32."""
+        from gaugecore.store import _check_slot
+        from gaugecore.tablexfer import Upload, parse_crc32
+
+        if channel != 0:
+            self._ch(channel)
+        try:
+            _check_slot(name)
+        except ValueError:
+            raise ValueError("table name %s: use a-z, 0-9, _ and -" % name)
+        if nbytes > self.store.max_bytes:
+            raise C.RangeError("%d bytes: a table file holds at most %d" % (nbytes, self.store.max_bytes))
+        self._upload = None
+        self._upload = Upload(name, channel, nbytes, parse_crc32(crc_text))
+
+    def _open_upload(self):
+        if self._upload is None:
+            raise OSError("no table upload in progress")
+        return self._upload
+
+    def upload_data(self, index, text, chunk_crc):
+        """Take one chunk (gaugecore.tablexfer.Upload.add); a refused chunk changes nothing."""
+        self._open_upload().add(index, text, chunk_crc)
+
+    def upload_next(self):
+        """Index of the chunk the open upload expects, -1 when none is open."""
+        return -1 if self._upload is None else self._upload.next_index
+
+    def upload_abort(self):
+        """Drop the upload in progress, if any."""
+        self._upload = None
+
+    def upload_end(self):
+        """Check the upload, install it (catalogue, then the channel) -> its CRC-32 text.
+
+        Any refusal leaves every table as it was; the upload is closed either way.
+        """
+        from gaugecore.tablexfer import crc32_text
+
+        up = self._open_upload()
+        self._upload = None
+        data = up.finish()
+        tc_types = []
+        for ch in self.channels:
+            if ch.table.tc_type not in tc_types:
+                tc_types.append(ch.table.tc_type)
+        n = up.channel
+        want = self._ch(n).table.tc_type if n else None
+        cat = self._catalogue_store()
+        table, crc = cat.check(up.name, data, want)
+        if want is None and table.tc_type not in tc_types:
+            raise ValueError("table refused: thermocouple type %s, the channels are type %s"
+                             % (table.tc_type, "/".join(tc_types)))
+        if n:
+            for k in range(len(self._setpoints)):
+                sp = self.config["setpoints"][k]
+                if sp["enable"] and sp["source"] == n:
+                    _check_levels(sp, table, k + 1)
+        cat.install(up.name, data, want)
+        if n:
+            self.set_table(n, up.name)
+        return crc32_text(crc)
+
+    def table_chunk(self, name, index):
+        """Chunk `index` of catalogue table `name` -> (CRC-16 as decimal text, base64 text)."""
+        from gaugecore.tablexfer import DOWNLOAD_CHUNK, chunk_of
+
+        path = self.catalogue.path(name)
+        f = open(path, "rb")
+        try:
+            f.seek(index * DOWNLOAD_CHUNK)
+            part = f.read(DOWNLOAD_CHUNK)
+        finally:
+            f.close()
+        crc, text = chunk_of(part, 0)
+        return ("%d" % crc, text)
 
     # ---------------------------------------------------------------- per reading
     def on_reading(self, ch):

@@ -71,8 +71,13 @@ heater voltage at `compliance_v` -- for longer than `compliance_ms`, default
 (default 500 ppm) of the target for `settle_ms` (default 500 ms) with the
 ramp finished.
 
-update() allocates nothing but the floats the arithmetic makes (13 boxed
-floats, 208 bytes a tick, measured under the MicroPython WebAssembly build).
+update() allocates nothing but the floats the arithmetic makes: 7 boxed
+floats (112 bytes) a tick while regulating, besides what the driver's reads
+make (gc.mem_alloc() under the MicroPython WebAssembly build). The clamp
+bounds and the authority and short-fall thresholds depend only on the
+reference, so they are computed when the reference moves (during a ramp) and
+reused while it holds; gains, authority and cmd_limit_ma are fixed at
+construction.
 
 Time: `now_ms` differences are taken plainly (no ticks wrap handling); the
 caller passes a monotonic millisecond count.
@@ -162,6 +167,28 @@ class HeaterRegulator:
         self._last_ms = None
         self._comp_since = None
         self._settle_since = None
+        # bounds cached for one reference value (see _bounds, _thresholds)
+        self._b_ref = None
+        self._u_hi = self._u_lo = 0.0
+        self._t_ref = None
+        self._big = self._nbig = self._short_ma = 0.0
+
+    def _bounds(self, r):
+        # command clamp for reference r: r (1 -/+ authority), at most cmd_limit_ma
+        u_hi = r * self._hi_k
+        if u_hi > self.cmd_limit_ma:
+            u_hi = self.cmd_limit_ma
+        self._u_hi = u_hi
+        self._u_lo = r * self._lo_k
+        self._b_ref = r
+
+    def _thresholds(self, ref_then):
+        # error beyond the authority, and the short-fall level, for ref_then
+        big = self.authority * ref_then
+        self._big = big
+        self._nbig = -big
+        self._short_ma = ref_then * self._short_k
+        self._t_ref = ref_then
 
     def set_target(self, ma):
         """New target current in mA, bounded by min_ma..max_ma (ValueError outside)."""
@@ -214,13 +241,12 @@ class HeaterRegulator:
         if self.state != OFF:
             r = self.reference_ma
             u = r + (self._i_pos if sign > 0 else self._i_neg)
-            u_hi = r * (1.0 + self.authority)
-            if u_hi > self.cmd_limit_ma:
-                u_hi = self.cmd_limit_ma
-            if u > u_hi:
-                u = u_hi
-            elif u < r * (1.0 - self.authority):
-                u = r * (1.0 - self.authority)
+            if r != self._b_ref:
+                self._bounds(r)
+            if u > self._u_hi:
+                u = self._u_hi
+            elif u < self._u_lo:
+                u = self._u_lo
             self.command_ma = u
             self._ref_prev = self.reference_ma
             self._driver.set_ma(u)
@@ -235,9 +261,7 @@ class HeaterRegulator:
         self.current_ma = i_ma
         if self._read_v is not None:
             self.voltage_v = self._read_v()
-        dt_ms = 0 if self._last_ms is None else now_ms - self._last_ms
-        if dt_ms < 0:
-            dt_ms = 0
+        last_ms = self._last_ms
         self._last_ms = now_ms
 
         ref_then = self._ref_prev
@@ -246,6 +270,9 @@ class HeaterRegulator:
         r = self.reference_ma
         tgt = self.target_ma
         if r != tgt:
+            dt_ms = 0 if last_ms is None else now_ms - last_ms
+            if dt_ms < 0:
+                dt_ms = 0
             step = self.ramp_ma_per_s * dt_ms * 0.001
             if r < tgt:
                 r = r + step
@@ -257,14 +284,17 @@ class HeaterRegulator:
                     r = tgt
             self.reference_ma = r
 
-        integ = self._i_pos if self.polarity > 0 else self._i_neg
-        u_hi = r * self._hi_k
-        if u_hi > self.cmd_limit_ma:
-            u_hi = self.cmd_limit_ma
-        u_lo = r * self._lo_k
-        big = self.authority * ref_then
+        pos = self.polarity > 0
+        integ = self._i_pos if pos else self._i_neg
+        if r != self._b_ref:
+            self._bounds(r)
+        u_hi = self._u_hi
+        if ref_then != self._t_ref:
+            self._thresholds(ref_then)
+        big = self._big
         v = self.voltage_v
-        at_v = self.compliance_v is not None and v is not None and abs(v) >= self.compliance_v
+        cv = self.compliance_v
+        at_v = cv is not None and v is not None and (v >= cv or -v >= cv)  # |v| >= cv
         if at_v and e > 0.0:
             # the source sits at its compliance voltage: more command cannot
             # help; freeze command and integrator (bumpless when it recovers)
@@ -276,22 +306,23 @@ class HeaterRegulator:
             # conditional integration: no integration on an error larger than
             # the loop's authority (that is a fault, not drift); otherwise the
             # integrator moves only as far as the clamp, never beyond it
-            if -big <= e <= big:
+            if self._nbig <= e <= big:
                 trial = integ + self.ki * e
             else:
                 trial = integ
-            u = r + self.kp * e + trial
+            pe = self.kp * e
+            u = r + pe + trial
             if u > u_hi:
                 if e > 0.0:
-                    lim = u_hi - r - self.kp * e
+                    lim = u_hi - r - pe
                     trial = integ if integ > lim else lim
                 u = u_hi
-            elif u < u_lo:
+            elif u < self._u_lo:
                 if e < 0.0:
-                    lim = u_lo - r - self.kp * e
+                    lim = self._u_lo - r - pe
                     trial = integ if integ < lim else lim
-                u = u_lo
-        if self.polarity > 0:
+                u = self._u_lo
+        if pos:
             self._i_pos = trial
         else:
             self._i_neg = trial
@@ -299,10 +330,9 @@ class HeaterRegulator:
         self._driver.set_ma(u)
         self._ref_prev = r
 
-        # compliance: the source cannot reach what it was asked for
-        short = i_ma < ref_then * self._short_k
-        at_rail = at_v or (r > 0.0 and u >= u_hi) or e > big
-        if short and at_rail:
+        # compliance: the source cannot reach what it was asked for (short
+        # of the reference and out of means)
+        if i_ma < self._short_ma and (at_v or (r > 0.0 and u >= u_hi) or e > big):
             if self._comp_since is None:
                 self._comp_since = now_ms
             if now_ms - self._comp_since >= self.compliance_ms:
@@ -314,14 +344,14 @@ class HeaterRegulator:
         dev = i_ma - tgt
         if dev < 0.0:
             dev = -dev
-        if self.state == STARTING and r == tgt and dev <= self._near_band_ma:
-            self.state = REGULATING
-
-        # settled: within settle_ppm of the target for settle_ms
-        if r == tgt and dev <= self._settle_band_ma:
-            if self._settle_since is None:
-                self._settle_since = now_ms
-            self.settled = now_ms - self._settle_since >= self.settle_ms
-        else:
-            self._settle_since = None
-            self.settled = False
+        if r == tgt:
+            if self.state == STARTING and dev <= self._near_band_ma:
+                self.state = REGULATING
+            # settled: within settle_ppm of the target for settle_ms
+            if dev <= self._settle_band_ma:
+                if self._settle_since is None:
+                    self._settle_since = now_ms
+                self.settled = now_ms - self._settle_since >= self.settle_ms
+                return
+        self._settle_since = None
+        self.settled = False

@@ -85,7 +85,7 @@ class Sampler:
         self._avg_fill = 0
         self._avg_pos = 0
         self._phase = _WAIT
-        self._due_ms = None  # next action time
+        self.due_ms = None  # next action time (read it as next_ms)
         self._period_ms_due = None  # start of the next sample period
         self._sign = 1
         self._acc_uv = 0.0
@@ -102,14 +102,14 @@ class Sampler:
 
     def start(self, now_ms):
         """Begin sampling at `now_ms` (first sample period starts now)."""
-        self._due_ms = now_ms
+        self.due_ms = now_ms
         self._period_ms_due = now_ms
         self._phase = _WAIT
 
     @property
     def next_ms(self):
         """When `step` next has something to do (None before `start`)."""
-        return self._due_ms
+        return self.due_ms
 
     def reset_average(self):
         """Forget the moving-average history (after a zero or a gap)."""
@@ -118,9 +118,11 @@ class Sampler:
 
     def step(self, now_ms):
         """Do whatever is due at `now_ms`; True when a new sample is complete."""
-        if self._due_ms is None:
+        # one call per phase: the reads and the averaging are inlined (a call
+        # costs more than the rest of a phase under MicroPython)
+        if self.due_ms is None:
             self.start(now_ms)
-        if now_ms - self._due_ms < 0:
+        if now_ms - self.due_ms < 0:
             return False
         if self._phase == _WAIT:
             if now_ms - self._period_ms_due >= self.period_ms:
@@ -128,52 +130,41 @@ class Sampler:
             self._acc_uv = 0.0
             self._count = 0
             self._ok = True
-            self._read_cj()
+            try:
+                self.cj_c = self.cj.read_c()
+                self.cj_ok = True
+            except OSError:
+                self.cj_c = None
+                self.cj_ok = False
             if self.mode == OFF_WINDOW:
                 self.heater.blank(True)
                 self.blanking = True
                 self._phase = _SETTLE
-                self._due_ms = now_ms + self.settle_ms
+                self.due_ms = now_ms + self.settle_ms
                 return False
         # _SETTLE ends when its due time is reached: read now
-        self._read_tc()
-        self._count += 1
-        if self.blanking:
-            self.heater.blank(False)
-            self.blanking = False
-        if self._count < self._n_reads:
-            self._sign = -self._sign
-            self.heater.set_polarity(self._sign)
-            self._phase = _SETTLE
-            self._due_ms = now_ms + self.settle_ms
-            return False
-        return self._finish(now_ms)
-
-    def _read_cj(self):
-        try:
-            self.cj_c = self.cj.read_c()
-            self.cj_ok = True
-        except OSError:
-            self.cj_c = None
-            self.cj_ok = False
-
-    def _read_tc(self):
         tc = self.tc
-        if self.reads == 1:
-            try:
-                self._acc_uv += tc.read_uv()
-            except OSError:
-                self._ok = False
-            return
         for _ in range(self.reads):
             try:
                 self._acc_uv += tc.read_uv()
             except OSError:
                 self._ok = False
-
-    def _finish(self, now_ms):
-        self.adc_ok = self._ok
-        if self._ok:
+        count = self._count + 1
+        self._count = count
+        if self.blanking:
+            self.heater.blank(False)
+            self.blanking = False
+        if count < self._n_reads:
+            sign = -self._sign
+            self._sign = sign
+            self.heater.set_polarity(sign)
+            self._phase = _SETTLE
+            self.due_ms = now_ms + self.settle_ms
+            return False
+        # sample complete
+        ok = self._ok
+        self.adc_ok = ok
+        if ok:
             value = self._acc_uv / (self._n_reads * self.reads)
             self.raw_uv = value
             n = self._avg_n
@@ -193,6 +184,6 @@ class Sampler:
         # next period on the fixed grid
         due = self._period_ms_due + self.period_ms
         self._period_ms_due = due
-        self._due_ms = due
+        self.due_ms = due
         self._phase = _WAIT
         return True

@@ -124,12 +124,14 @@ class Setpoint:
                     why = state
                 self._switch(False, now_ms, "fail-safe: %s" % (why,))
             return
+        en = self.energised
         if self.direction == BELOW:
-            want = (p < self.on_pa) if not self.energised else not (p > self.off_pa)
+            want = not (p > self.off_pa) if en else p < self.on_pa
         else:
-            want = (p > self.on_pa) if not self.energised else not (p < self.off_pa)
-        if want == self.energised:
-            self._since_ms = None
+            want = not (p < self.off_pa) if en else p > self.on_pa
+        if want == en:  # nothing changes (the usual case)
+            if self._since_ms is not None:
+                self._since_ms = None
             return
         if self._since_ms is None:
             self._since_ms = now_ms

@@ -3,7 +3,11 @@
 A `Table` holds points (EMF mV, pressure Pa) listed by rising pressure, with
 the EMF strictly falling, plus the conditions they hold for: gas, tube
 profile, heater current, thermocouple type and the reference-junction
-temperature the EMFs are stated at.
+temperature the EMFs are stated at. Optionally (table file version 2) the
+wall temperature the table was made at, `wall_c`, and per point the wall
+coefficient of the filament's rise, `rise_slope_per_k` = d ln(dT)/d T_wall
+at fixed pressure (1/K): what gaugecore.coldjunction.RiseReferral needs to
+carry a reading taken at another wall temperature to the table's.
 
 Conversion interpolates log10(pressure) as a function of EMF with a
 monotone piecewise cubic Hermite curve (PCHIP): F. N. Fritsch and
@@ -38,10 +42,19 @@ MIN_POINTS = const(4)
 # pressure, log10 p, the knot slope and 3 cubic coefficients) in 7 lists and a
 # 2-tuple; on a 32-bit MicroPython port each float is a boxed heap object in a
 # 16-byte GC block and each list slot 4 bytes, so about 7*16 + 7*4 + 16 = 156
-# bytes a point. 128 points are then about 20 kB, plus a few kB while the JSON
-# file is parsed: about a tenth of the ~190 kB heap (from memory) of an RP2040-class board,
-# room for two channels' tables. Real tube tables have 20 to 60 points.
+# bytes a point. A table with the wall model adds one float (the rise slope)
+# held in a tuple (point order) and a list (EMF order): 16 + 2*4 = 24 bytes,
+# 180 bytes a point. 128 points are then about 23 kB, plus a few kB while the
+# JSON file is parsed: about an eighth of the ~190 kB heap (from memory) of an
+# RP2040-class board, room for two channels' tables. Real tube tables have 20
+# to 60 points. Measured under the MicroPython 1.27 WASM build (gc.mem_alloc
+# differences after gc.collect), a 128-point table takes 78 kB, 88 kB with the
+# wall model (about 600 and 680 bytes a point): more than this count, so take
+# the budget from a measurement on the board before raising MAX_POINTS.
 MAX_POINTS = const(128)
+# |d ln(dT)/d T_wall| above this is not a tube's heat balance (10 % of the
+# rise per kelvin of wall; the demo tube's is below 0.2 %/K): a wrong column.
+MAX_RISE_SLOPE_PER_K = 0.1
 
 DEFAULT_INVALID_MARGIN = 0.15  # EMF above the top point by 15 % of it is impossible
 DEFAULT_NOISE_MV = 0.05  # EMF below -0.05 mV is a reversed or mis-wired couple
@@ -119,11 +132,14 @@ class Table:
     strictly falling. invalid_margin: an EMF above the top (high-vacuum) point
     by more than this fraction of it is impossible for the tube. noise_mv: an
     EMF below -noise_mv is impossible too (open, reversed or mis-wired couple).
-    Raises TableError naming the rule broken.
+    wall_c: wall temperature (C) the table was made at, or None (not known).
+    rise_slope_per_k: None, or one d ln(dT)/d T_wall (1/K) per point, in the
+    points' order; it needs wall_c. Raises TableError naming the rule broken.
     """
 
     def __init__(self, points, gas, profile, heater_ma, ref_c, tc_type, source="",
-                 invalid_margin=DEFAULT_INVALID_MARGIN, noise_mv=DEFAULT_NOISE_MV):
+                 invalid_margin=DEFAULT_INVALID_MARGIN, noise_mv=DEFAULT_NOISE_MV,
+                 wall_c=None, rise_slope_per_k=None):
         if gas not in GASES:
             raise TableError("unknown gas %s (known: %s)" % (_show(gas), ", ".join(GASES)))
         if not isinstance(profile, str) or not profile:
@@ -158,8 +174,17 @@ class Table:
         self.tc_type = tc_type
         self.source = source
         self.points = self._check_points(points)
-
         n = len(self.points)
+        if wall_c is None:
+            self.wall_c = None
+        else:
+            x = _number(wall_c)
+            if x is None or not _finite(x) or x < -50.0 or x > 150.0:
+                raise TableError("wall temperature must be a finite number within -50..150 C, got %s C"
+                                 % _show(wall_c))
+            self.wall_c = x
+        self.rise_slope_per_k = self._check_slopes(rise_slope_per_k, n, self.wall_c)
+
         # Interpolation runs on EMF ascending: the points reversed.
         xs = [self.points[n - 1 - k][0] for k in range(n)]
         ps = [self.points[n - 1 - k][1] for k in range(n)]
@@ -181,6 +206,8 @@ class Table:
         self._c3 = c3
         self._p = ps
         self._slopes = d
+        k = self.rise_slope_per_k
+        self._k = None if k is None else [k[n - 1 - i] for i in range(n)]
         self.p_min_pa = ps[n - 1]
         self.p_max_pa = ps[0]
         self.emf_range_mv = (xs[0], xs[n - 1])
@@ -224,6 +251,48 @@ class Table:
                         % (i, emf, p, emf0, p0))
             out.append((emf, p))
         return tuple(out)
+
+    @staticmethod
+    def _check_slopes(slopes, n, wall_c):
+        if slopes is None:
+            return None
+        if wall_c is None:
+            raise TableError("rise slopes need the wall temperature they were taken at")
+        try:
+            m = len(slopes)
+        except TypeError:
+            raise TableError("rise slopes must be a list of numbers, one per point")
+        if m != n:
+            raise TableError("rise slopes: %d values for %d points" % (m, n))
+        out = []
+        for i in range(m):
+            k = _number(slopes[i])
+            if k is None or not _finite(k) or k > MAX_RISE_SLOPE_PER_K or k < -MAX_RISE_SLOPE_PER_K:
+                raise TableError("point %d: rise slope must be a finite number within +/-%.6g per K, "
+                                 "got %s" % (i, MAX_RISE_SLOPE_PER_K, _show(slopes[i])))
+            out.append(k)
+        return tuple(out)
+
+    def rise_slope_at(self, emf_mv):
+        """d ln(dT)/d T_wall (1/K) at a table EMF: linear between the points,
+        the end value beyond them; 0.0 when the table has no rise slopes."""
+        k = self._k
+        if k is None:
+            return 0.0
+        x = self._x
+        hi = len(x) - 1
+        if not emf_mv < x[hi]:  # also NaN
+            return k[hi]
+        if not emf_mv > x[0]:
+            return k[0]
+        lo = 0
+        while hi - lo > 1:
+            mid = (lo + hi) >> 1
+            if x[mid] <= emf_mv:
+                lo = mid
+            else:
+                hi = mid
+        return k[lo] + (k[hi] - k[lo]) * (emf_mv - x[lo]) / (x[hi] - x[lo])
 
     def convert(self, emf_mv):
         """EMF in mV (referred to the table's ref_c) -> (pressure_pa, state).
@@ -279,7 +348,8 @@ class Table:
 
     def _key(self):
         return (self.points, self.gas, self.profile, self.heater_ma, self.ref_c,
-                self.tc_type, self.source, self.invalid_margin, self.noise_mv)
+                self.tc_type, self.source, self.invalid_margin, self.noise_mv,
+                self.wall_c, self.rise_slope_per_k)
 
     def __eq__(self, other):
         return isinstance(other, Table) and self._key() == other._key()

@@ -1,4 +1,4 @@
-"""Table files: a `Table` as UTF-8 JSON text with a CRC-32, format "tcgauge-table" version 1.
+"""Table files: a `Table` as UTF-8 JSON text with a CRC-32, format "tcgauge-table" versions 1 and 2.
 
 Layout, exactly as `dumps` writes it (one key order, one spacing, numbers
 as '%.10g', so CPython and MicroPython write the same bytes)::
@@ -15,7 +15,23 @@ as '%.10g', so CPython and MicroPython write the same bytes)::
      "crc32": "0x1a2b3c4d"}
 
 followed by one newline. Points are [EMF mV, pressure Pa] by rising
-pressure. Strings are written with '"', '\\' and control characters
+pressure.
+
+Version 2 adds the wall model (gaugecore.coldjunction.RiseReferral): a line
+' "wall_c": 22,' (the wall temperature the table was made at) after
+"source", and, optionally, after the points::
+
+     ],
+     "rise_slope_per_k": [
+      -0.00182, -0.00181, ... (8 a line, one per point, in point order)
+     ],
+     "crc32": ...
+
+`dumps` writes version 1, byte for byte as before, for a table without a
+wall temperature, and version 2 only when there is one; so old readers keep
+reading every table that does not need the new fields, and every version-1
+file loads as it did (the channel then assumes a wall temperature and says
+so). Strings are written with '"', '\\' and control characters
 escaped ('\\"', '\\\\', '\\u00XX'), anything else as it is, in UTF-8.
 
 Canonical encoding and CRC: the file is BODY + TAIL, where TAIL is
@@ -39,13 +55,15 @@ from gaugecore.crc32 import crc32
 from gaugecore.table import Table, TableError
 
 FORMAT = "tcgauge-table"
-VERSION = 1
+VERSION = 2  # the newest version written; versions 1 and 2 are read
+_SLOPES_PER_LINE = 8
 
 _CRC_KEY = '"crc32": "'
 # Fields of version 1 in file order (after format and version, before crc32).
 _META = ("gas", "profile", "tc_type", "heater_ma", "ref_c", "invalid_margin", "noise_mv", "source")
 _STRINGS = ("gas", "profile", "tc_type", "source")
 _ALL = ("format", "version") + _META + ("points", "crc32")
+_ALL_V2 = _ALL + ("wall_c", "rise_slope_per_k")
 
 
 class TableFileError(ValueError):
@@ -72,20 +90,31 @@ def _quote(s):
 
 
 def _body(table):
+    wall_c = getattr(table, "wall_c", None)
     lines = [
-        '{"format": %s, "version": %d,' % (_quote(FORMAT), VERSION),
+        '{"format": %s, "version": %d,' % (_quote(FORMAT), 1 if wall_c is None else 2),
         ' "gas": %s, "profile": %s, "tc_type": %s, "heater_ma": %s, "ref_c": %s,'
         % (_quote(table.gas), _quote(table.profile), _quote(table.tc_type),
            _num(table.heater_ma), _num(table.ref_c)),
         ' "invalid_margin": %s, "noise_mv": %s,' % (_num(table.invalid_margin), _num(table.noise_mv)),
         ' "source": %s,' % _quote(table.source),
-        ' "points": [',
     ]
+    if wall_c is not None:
+        lines.append(' "wall_c": %s,' % _num(wall_c))
+    lines.append(' "points": [')
     pts = table.points
     last = len(pts) - 1
     for i in range(len(pts)):
         lines.append("  [%s, %s]%s" % (_num(pts[i][0]), _num(pts[i][1]), "," if i < last else ""))
     lines.append(" ],")
+    k = getattr(table, "rise_slope_per_k", None)
+    if k is not None:
+        lines.append(' "rise_slope_per_k": [')
+        n = len(k)
+        for i in range(0, n, _SLOPES_PER_LINE):
+            row = [_num(k[j]) for j in range(i, min(i + _SLOPES_PER_LINE, n))]
+            lines.append("  " + ", ".join(row) + ("," if i + _SLOPES_PER_LINE < n else ""))
+        lines.append(" ],")
     lines.append(" ")
     return "\n".join(lines)
 
@@ -139,8 +168,8 @@ def parse(text):
         raise TableFileError("field 'format': expected %s, got %s"
                              % (_show(FORMAT), _show(doc.get("format"))))
     version = doc.get("version")
-    if version != VERSION or not _is_num(version):
-        raise TableFileError("unsupported table file version %s (this build reads version %d)"
+    if not _is_num(version) or version not in (1, 2) or isinstance(version, float):
+        raise TableFileError("unsupported table file version %s (this build reads versions 1 and %d)"
                              % (_show(version), VERSION))
     crc_text = doc.get("crc32")
     if crc_text is None:
@@ -158,9 +187,11 @@ def parse(text):
     if content_crc != file_crc:
         raise TableFileError("crc mismatch: file says 0x%08x, content gives 0x%08x"
                              % (file_crc, content_crc))
-    for key in doc:
-        if key not in _ALL:
-            raise TableFileError("field %s: not a field of version %d" % (_show(key), VERSION))
+    known = _ALL if version == 1 else _ALL_V2
+    # the first unknown key by name: dict order differs between interpreters
+    unknown = sorted([key for key in doc if key not in known])
+    if unknown:
+        raise TableFileError("field %s: not a field of version %d" % (_show(unknown[0]), version))
     meta = {}
     for key in _META:
         if key not in doc:
@@ -186,9 +217,26 @@ def parse(text):
             if not _is_num(pt[j]):
                 raise TableFileError("field 'points[%d][%d]': expected a number, got %s"
                                      % (i, j, _show(pt[j])))
+    wall_c = None
+    slopes = None
+    if version == 2:
+        if "wall_c" not in doc:
+            raise TableFileError("field 'wall_c' is missing (version 2 carries the wall temperature)")
+        wall_c = doc["wall_c"]
+        if not _is_num(wall_c):
+            raise TableFileError("field 'wall_c': expected a number, got %s" % _show(wall_c))
+        slopes = doc.get("rise_slope_per_k")
+        if slopes is not None:
+            if not isinstance(slopes, list):
+                raise TableFileError("field 'rise_slope_per_k': expected a list of numbers")
+            for i in range(len(slopes)):
+                if not _is_num(slopes[i]):
+                    raise TableFileError("field 'rise_slope_per_k[%d]': expected a number, got %s"
+                                         % (i, _show(slopes[i])))
     try:
         table = Table(pts, meta["gas"], meta["profile"], meta["heater_ma"], meta["ref_c"],
-                      meta["tc_type"], meta["source"], meta["invalid_margin"], meta["noise_mv"])
+                      meta["tc_type"], meta["source"], meta["invalid_margin"], meta["noise_mv"],
+                      wall_c, slopes)
     except TableError as exc:
         raise TableFileError(str(exc))
     return table, file_crc

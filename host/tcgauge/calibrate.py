@@ -261,11 +261,19 @@ class FitResult:
 def _table(points, meta):
     return Table([(pt.emf_mv, pt.p_ref_pa) for pt in points], meta["gas"], meta["profile"],
                  meta["heater_ma"], meta["ref_c"], meta["tc_type"], meta.get("source", ""),
-                 meta.get("invalid_margin", 0.15), meta.get("noise_mv", 0.05))
+                 meta.get("invalid_margin", 0.15), meta.get("noise_mv", 0.05),
+                 wall_c=meta.get("wall_c"))
 
 
 def fit_table(pairs, gas, profile, heater_ma, ref_c, tc_type, source="", merge_rel=0.02, **table_kw):
-    """Calibration pairs (CalPoints or (emf_mv, p_pa)) -> FitResult with a monotone Table."""
+    """Calibration pairs (CalPoints or (emf_mv, p_pa)) -> FitResult with a monotone Table.
+
+    table_kw: invalid_margin, noise_mv, and wall_c, the tube's wall (pins)
+    temperature during the calibration: give it, and the channel refers its
+    readings to that wall. A calibration has no tube model, so its table
+    carries no rise slopes: the channel applies plain wall referral (no
+    correction of the rise for the wall's effect on the heat balance).
+    """
     pts = sorted((CalPoint.of(p) for p in pairs), key=lambda pt: pt.p_ref_pa)
     for pt in pts:
         if not (math.isfinite(pt.p_ref_pa) and pt.p_ref_pa > 0.0 and math.isfinite(pt.emf_mv)):

@@ -25,6 +25,7 @@ VERB_MODULES = [
     "tcgauge.cmd_sim",
     "tcgauge.cmd_deploy",
     "tcgauge.cmd_info",
+    "tcgauge.cmd_calibrate",
 ]
 
 

@@ -9,10 +9,16 @@
   from an N2 table through the fitted tube model (tcgauge.derive), with its
   band sidecar; refuses to overwrite without --force.
 
+- `push FILE --port PORT [--channel N] [--name NAME]`: send a table to the
+  device and install it (tcgauge.transfer), with a progress bar on a
+  terminal; success only after the CRC-32 read back matches the file's.
+- `pull NAME --port PORT -o FILE`: fetch a catalogue table's exact bytes.
+- `list --port PORT`: catalogue tables with their CRC-32, and the table of
+  each channel.
+
 A bad file or argument gives one line on stderr and exit status 2 (a
-TcgaugeError, turned into that line by tcgauge.cli). The `table` group is
-where later verbs (push, pull, list) are added: one sub-parser each in
-`register`.
+TcgaugeError, turned into that line by tcgauge.cli). Each verb is one
+sub-parser in `register`.
 """
 
 import os
@@ -153,6 +159,103 @@ def _cmd_derive(args):
     return 0
 
 
+class _Session:
+    """Port, Link and Client of a device verb; closes the port on exit."""
+
+    def __init__(self, port_name, timeout_s):
+        from tcgauge.client import Client
+        from tcgauge.cmd_info import open_port
+        from tcgauge.link import Link
+
+        self.port_name = port_name
+        self.port = open_port(port_name)
+        self.client = Client(Link(self.port, timeout_s=timeout_s))
+
+    def __enter__(self):
+        from tcgauge.link import LinkTimeout
+
+        try:
+            self.client.open()
+        except LinkTimeout as exc:
+            self.port.close()
+            raise TcgaugeError("%s: %s (is the tcgauge firmware running?)" % (self.port_name, exc))
+        return self.client
+
+    def __exit__(self, *exc):
+        self.port.close()
+
+
+def _progress_printer(stream):
+    """progress(sent, total) for a plain stream: one line per quarter."""
+    state = {"next": 0.25}
+
+    def progress(sent, total):
+        while total and sent / total >= state["next"] - 1e-9:
+            print("sent %d of %d bytes" % (sent, total), file=stream)
+            state["next"] += 0.25
+
+    return progress
+
+
+def _cmd_push(args):
+    import sys
+
+    from tcgauge import transfer
+
+    check_file(args.file)  # a bad file fails here, before the port is opened
+    with _Session(args.port, args.timeout) as client:
+        if sys.stdout.isatty():
+            from rich.progress import Progress
+
+            with Progress(transient=True) as bar:
+                task = bar.add_task("push %s" % os.path.basename(args.file), total=None)
+
+                def progress(sent, total):
+                    bar.update(task, completed=sent, total=total)
+
+                res = transfer.push(client, args.file, args.channel, args.name, progress)
+        else:
+            res = transfer.push(client, args.file, args.channel, args.name, _progress_printer(sys.stdout))
+    where = "channel %d" % res.channel if res.channel else "the catalogue"
+    print("pushed %s as %s to %s: %d bytes in %d chunks%s, crc32 0x%08x verified"
+          % (args.file, res.name, where, res.nbytes, res.chunks,
+             " (%d resent)" % res.retries if res.retries else "", res.crc32))
+    return 0
+
+
+def _cmd_pull(args):
+    from tcgauge import transfer
+
+    with _Session(args.port, args.timeout) as client:
+        text = transfer.pull(client, args.name)
+    if os.path.exists(args.output) and not args.force:
+        raise TcgaugeError("%s exists; use --force to overwrite" % args.output)
+    data = text.encode("utf-8")
+    try:
+        with open(args.output, "wb") as f:
+            f.write(data)
+    except OSError as exc:
+        raise TcgaugeError("cannot write %s: %s" % (args.output, exc.strerror or exc))
+    print("pulled %s: %d bytes, crc32 0x%08x verified, written to %s"
+          % (args.name, len(data), tablefile.parse(data)[1], args.output))
+    return 0
+
+
+def _cmd_list(args):
+    from tcgauge import transfer
+
+    with _Session(args.port, args.timeout) as client:
+        lst = transfer.listing(client)
+    print("\n".join(lst.lines()))
+    return 0
+
+
+def _device_args(p):
+    p.add_argument("--port", required=True, help="serial port or URL (e.g. /dev/ttyACM0, sim://)")
+    p.add_argument("--timeout", type=float, default=2.0, metavar="S",
+                   help="seconds to wait for each reply (default 2)")
+
+
 def register(subparsers):
     """Add the `table` verb group to the top-level sub-parsers."""
     parser = subparsers.add_parser("table", help="check and manage gas table files")
@@ -185,6 +288,25 @@ def register(subparsers):
                      help="wall temperature of the N2 measurement, C (default 22)")
     der.add_argument("--force", action="store_true", help="overwrite existing output files")
     der.set_defaults(func=_cmd_derive)
+
+    push = verbs.add_parser("push", help="send a table file to the device and install it")
+    push.add_argument("file", metavar="FILE", help="table file (tcgauge-table JSON)")
+    _device_args(push)
+    push.add_argument("--channel", type=int, default=None, metavar="N",
+                      help="switch channel N to the table (default: catalogue only)")
+    push.add_argument("--name", default=None, help="name on the device (default: the file's stem)")
+    push.set_defaults(func=_cmd_push)
+
+    pull = verbs.add_parser("pull", help="fetch a table from the device")
+    pull.add_argument("name", metavar="NAME", help="table name on the device (see `table list`)")
+    _device_args(pull)
+    pull.add_argument("-o", "--output", required=True, help="table file to write")
+    pull.add_argument("--force", action="store_true", help="overwrite an existing file")
+    pull.set_defaults(func=_cmd_pull)
+
+    lst = verbs.add_parser("list", help="list the device's tables and the table of each channel")
+    _device_args(lst)
+    lst.set_defaults(func=_cmd_list)
 
     def _no_verb(args):
         parser.print_help()

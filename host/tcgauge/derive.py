@@ -41,6 +41,7 @@ from gaugecore.table import Table, TableError
 from tcgauge import band as bandmod
 from tcgauge.errors import TcgaugeError
 from tcgauge.sim.gas import get_gas
+from tcgauge.sim.simtable import rise_slope_per_k
 from tcgauge.tubefit import DEFAULT_WALL_C, fit_n2_table, with_alpha
 
 log = logging.getLogger(__name__)
@@ -191,8 +192,14 @@ def _warnings(fit, gas, p, e, down, up, shares):
 
 
 def derive_table(n2, gas, profile="wren-demo", p_min_pa=None, p_max_pa=None, points=None,
-                 t_wall_c=DEFAULT_WALL_C, fit=None):
+                 t_wall_c=None, fit=None):
     """Derive the table for `gas` from the N2 `Table` `n2` -> `Derivation`.
+
+    t_wall_c: the wall temperature of the N2 table (default: the one it
+    states, else DEFAULT_WALL_C). The derived table states it too and carries
+    the fitted model's rise slopes d ln(dT)/dT_wall per point
+    (tcgauge.sim.simtable.rise_slope_per_k on the fitted profile in `gas`), so
+    the channel's rise referral corrects it for the wall as it does the N2 table.
 
     The range defaults to `default_range_pa`; `points` to the N2 table's
     count. `fit` reuses a tcgauge.tubefit.Fit of that table. Raises DeriveError
@@ -203,6 +210,9 @@ def derive_table(n2, gas, profile="wren-demo", p_min_pa=None, p_max_pa=None, poi
     if gas == "N2":
         raise DeriveError("the base table is already for N2: nothing to derive")
     g = get_gas(gas)
+    if t_wall_c is None:
+        t_wall_c = fit.t_wall_c if fit is not None else (
+            n2.wall_c if n2.wall_c is not None else DEFAULT_WALL_C)
     if fit is None:
         fit = fit_n2_table(n2, profile, t_wall_c)
     d_lo, d_hi = default_range_pa(fit, g)
@@ -216,6 +226,7 @@ def derive_table(n2, gas, profile="wren-demo", p_min_pa=None, p_max_pa=None, poi
     p = np.logspace(math.log10(lo), math.log10(hi), n)
     try:
         e = fit.emf_mv(g, p)
+        slopes = rise_slope_per_k(fit.profile(), g, p, fit.current_a, fit.t_wall_c)
         down, up = band_limits(fit, g, p, e)[:2]
         shares = fit.gas_shares(g, p)
     except (ArithmeticError, ValueError) as exc:
@@ -233,7 +244,8 @@ def derive_table(n2, gas, profile="wren-demo", p_min_pa=None, p_max_pa=None, poi
     try:
         table = Table([(float(a), float(b)) for a, b in zip(e, p)], gas, n2.profile, n2.heater_ma,
                       n2.ref_c, n2.tc_type, source=source, invalid_margin=n2.invalid_margin,
-                      noise_mv=n2.noise_mv)
+                      noise_mv=n2.noise_mv, wall_c=fit.t_wall_c,
+                      rise_slope_per_k=[float(k) for k in slopes])
         # As the file will hold it (10 digits): the table in memory equals the one read back.
         table = tablefile.loads(tablefile.dumps(table))
     except (TableError, tablefile.TableFileError) as exc:

@@ -103,10 +103,10 @@ class Link:
         return self.records.popleft()
 
     def poll(self):
-        """Read whatever is waiting, without blocking longer than one port read."""
-        while self._read_some():
-            if not getattr(self.port, "in_waiting", 1):
-                break  # a streaming device never goes quiet: stop when nothing is waiting
+        """Read whatever is waiting. A port that tells what is waiting (`in_waiting`) is
+        never blocked on; one that does not is read until a read comes back empty."""
+        while getattr(self.port, "in_waiting", 1) and self._read_some():
+            pass
 
     def _read_some(self):
         waiting = getattr(self.port, "in_waiting", 0) or 1

@@ -102,10 +102,12 @@ def state_spans(t_s, state_list):
     return [tuple(s) for s in spans]
 
 
-def plot_log(db, out_png, unit="TORR", run=None, title=None):
+def plot_log(db, out_png, unit="TORR", run=None, title=None, channel_labels=None):
     """Draw a run of the log `db` (path or connection) to `out_png`; return what was drawn.
 
-    The returned dict: unit, symbol, run, title, xlabel, ylabel, png, and
+    channel_labels: {channel: legend text} (default "channel N").
+    The returned dict: unit, symbol, run, title, xlabel, ylabel, png, legend
+    (the legend's texts, in order), and
     channels {ch: {"t_s", "pressure"}} (pressure in `unit`, None where no
     number), markers {ch: {"under": [(t, p)], "over": [(t, p)]}},
     true {ch: {"t_s", "pressure"}}, spans [(ch, state, t0, t1)] for the
@@ -145,7 +147,7 @@ def plot_log(db, out_png, unit="TORR", run=None, title=None):
              for v, st in zip(c["pressure_pa"], c["state"])]
         y = [math.nan if v is None else v for v in p]
         line, = ax.plot(c["t_s"], y, color=colour, lw=2.4 if i == 0 else 1.2,
-                        label="channel %d" % ch, zorder=3 + i)
+                        label=(channel_labels or {}).get(ch, "channel %d" % ch), zorder=3 + i)
         legend.append(line)
         drawn["channels"][ch] = {"t_s": list(c["t_s"]), "pressure": p}
         marks = {"under": [], "over": []}
@@ -242,5 +244,6 @@ def plot_log(db, out_png, unit="TORR", run=None, title=None):
     fig.tight_layout()
     fig.savefig(out_png, dpi=110)
     plt.close(fig)
-    drawn.update({"title": title, "xlabel": xlabel, "ylabel": ylabel})
+    drawn.update({"title": title, "xlabel": xlabel, "ylabel": ylabel,
+                  "legend": [h.get_label() for h in legend]})
     return drawn

@@ -181,3 +181,33 @@ class FakeFacade:
     def tables(self):
         self._log("tables")
         return ["wren-demo", "wren-demo-ar"]
+
+    # table transfer (gaugecore.tablexfer); CRC values invented for the demo
+    def table_crc(self, name):
+        self._log("table_crc", name)
+        return "0x1a2b3c4d"
+
+    def active_crc(self, ch):
+        self._log("active_crc", ch)
+        return "0x1a2b3c4d"
+
+    def upload_begin(self, name, channel, nbytes, crc_text):
+        self._log("upload_begin", name, channel, nbytes, crc_text)
+
+    def upload_data(self, index, text, chunk_crc):
+        self._log("upload_data", index, text, chunk_crc)
+
+    def upload_next(self):
+        self._log("upload_next")
+        return 0
+
+    def upload_end(self):
+        self._log("upload_end")
+        return "0x1a2b3c4d"
+
+    def upload_abort(self):
+        self._log("upload_abort")
+
+    def table_chunk(self, name, index):
+        self._log("table_chunk", name, index)
+        return ("65535", "")

@@ -1,5 +1,6 @@
 """Channel pipeline on fake hardware: conversion, compensation, faults, setpoints."""
 
+import math
 import os
 import sys
 
@@ -9,6 +10,7 @@ import thermocouples
 from gaugecore import faults, states
 from gaugecore.channel import Channel
 from gaugecore.setpoint import Setpoint
+from gaugecore.table import Table
 
 sys.path.insert(0, os.path.dirname(__file__))
 import fake_gauge as fg  # noqa: E402
@@ -45,8 +47,52 @@ def test_reading_matches_the_tube(pressure_pa):
                                        ch.heater_ma, ch.time_ms)
 
 
-def test_cold_junction_compensation_against_its90():
+def _hot_c(k, volts):
+    """Temperature where the package's forward ITS-90 function gives `volts`, by
+    bisection (its published inverse polynomial is only good to ~0.05 C)."""
+    lo, hi = 0.0, 1000.0
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        lo, hi = (mid, hi) if k.temp_to_volt(mid) < volts else (lo, mid)
+    return 0.5 * (lo + hi)
+
+
+def test_default_compensation_is_the_rise_above_the_junction():
+    # the fake table states no wall temperature (a version-1 table): plain wall
+    # referral to the assumed 22 C, and the channel says so
     rig, ch = make(1.0)
+    assert ch.compensation == "rise"
+    assert ch.compensation_note == ("table states no wall temperature: plain wall referral "
+                                    "to 22 C assumed")
+    rig.cj.t_c = 30.0
+    run(rig, ch, 5000)
+    # filament T1 = E^-1(E_meas + E(30 C)), rise T1 - 30 C carried to the 22 C wall:
+    # E(22 C + rise) - E(ref 22 C); ITS-90 type K from the PyPI `thermocouples` package
+    k = thermocouples.get_thermocouple("K")
+    t1 = _hot_c(k, ch.emf_mv * 1e-3 + k.temp_to_volt(30.0))
+    expect = (k.temp_to_volt(22.0 + t1 - 30.0) - k.temp_to_volt(22.0)) * 1e3
+    assert ch.emf_ref_mv == pytest.approx(expect, abs=1e-6)
+    # a table with its wall temperature and slopes: the rise is corrected by exp(-k (t_cj - t_w))
+    t = fg.make_table()
+    walled = Table(t.points, t.gas, t.profile, t.heater_ma, t.ref_c, t.tc_type, "invented",
+                   wall_c=24.0, rise_slope_per_k=(-0.002,) * len(t.points))
+    rig2 = fg.Rig(pressure_pa=1.0, noise_uv=0.2)
+    rig2.cj.t_c = 30.0
+    ch2 = Channel(0, rig2.tc, rig2.cj, rig2.heater, rig2.relays, walled, fg.limits())
+    assert ch2.compensation_note is None
+    run(rig2, ch2, 5000)
+    t1 = _hot_c(k, ch2.emf_mv * 1e-3 + k.temp_to_volt(30.0))
+    rise = (t1 - 30.0) * math.exp(0.002 * (30.0 - 24.0))
+    expect = (k.temp_to_volt(24.0 + rise) - k.temp_to_volt(22.0)) * 1e3
+    assert ch2.emf_ref_mv == pytest.approx(expect, abs=1e-6)
+    with pytest.raises(ValueError) as err:
+        make(1.0, compensation="absolute")
+    assert str(err.value) == "compensation must be 'rise' or 'its90'"
+
+
+def test_its90_compensation_against_its90():
+    rig, ch = make(1.0, compensation="its90")
+    assert ch.compensation_note is None
     rig.cj.t_c = 30.0
     run(rig, ch, 5000)
     # law of intermediate temperatures: E(t, 22 C) = E_meas + E(30 C) - E(22 C),
@@ -166,3 +212,22 @@ def test_configuration_errors():
     with pytest.raises(ValueError) as exc:
         ch.set_table(other)
     assert str(exc.value) == "table is for type E, this channel is type K"
+
+
+class _RailedInput:
+    """An open thermocouple: the front end's bias pulls the input to a level far above
+    any physical EMF, beyond the type-K reference function's range (54.886 mV, NIST
+    Monograph 175), so the cold-junction step itself cannot invert it."""
+
+    def read_uv(self):
+        return 65000.0
+
+
+def test_an_emf_beyond_the_reference_function_gives_tc_open_not_an_exception():
+    rig, ch = make(1.0)
+    run(rig, ch, 20000)
+    assert ch.state == states.OK
+    ch.tc = _RailedInput()
+    ch.sampler.tc = _RailedInput()
+    run(rig, ch, 21000)  # must not raise out of step(): the board's loop would stop
+    assert (ch.state, ch.fault, ch.pressure_pa) == (states.FAULT, faults.TC_OPEN, None)

@@ -121,3 +121,52 @@ def test_errors_name_the_range():
     with pytest.raises(ValueError) as info:
         ColdJunction("T", 25.0).refer(1.0, -300.0)
     assert str(info.value) == "type T: -300 C is outside -270..400 C"
+
+
+# ---------------------------------------------------------------- rise referral
+
+
+def _exact_rise_referral(table, e_meas, t_cj):
+    """The referral of gaugecore.coldjunction's docstring, every function evaluated afresh."""
+    from gaugecore.thermocouple import emf_mv, temperature_c
+    import math
+
+    ty = table.tc_type
+    rise = temperature_c(ty, e_meas + emf_mv(ty, t_cj)) - t_cj
+    d = t_cj - table.wall_c
+    e_ref = emf_mv(ty, table.ref_c)
+    k = table.rise_slope_at(e_meas + emf_mv(ty, table.wall_c) - e_ref)
+    r = rise * math.exp(-k * d)
+    k = table.rise_slope_at(emf_mv(ty, table.wall_c + r) - e_ref)
+    r = rise * math.exp(-k * d)
+    return emf_mv(ty, table.wall_c + r) - e_ref
+
+
+@pytest.mark.parametrize("tc_type", ["E", "J", "K", "N", "T"])
+def test_rise_referral_anchors_follow_the_exact_functions(tc_type):
+    from gaugecore.coldjunction import RiseReferral
+    from gaugecore.table import Table
+
+    # invented table: EMFs 0.5..12 mV, slopes -0.002..+0.0003 per K, wall 23 C
+    n = 12
+    pts = [(12.0 - 11.5 * i / (n - 1), 0.02 * 3.0 ** i) for i in range(n)]
+    slopes = [-0.002 + 0.0023 * i / (n - 1) for i in range(n)]
+    t = Table(pts, "N2", "wren-demo", 150.0, 0.0, tc_type, "invented", wall_c=23.0,
+              rise_slope_per_k=slopes)
+    r = RiseReferral(t)
+    worst = 0.0
+    # a slow sweep (anchors reused) and jumps (anchors renewed), junction 15..35 C
+    e = 0.6
+    t_cj = 15.0
+    while e < 11.9:
+        got = r.refer(e, t_cj)
+        worst = max(worst, abs(got - _exact_rise_referral(t, e, t_cj)))
+        e += 0.003 if e < 6.0 else 0.11
+        t_cj = 15.0 + (t_cj - 15.0 + 0.05) % 20.0
+    # the anchors' linearisation leaves under 0.03 uV (coldjunction.INV_ANCHOR_MV, FWD_ANCHOR_C)
+    assert worst < 3e-5, worst
+    # on the table's wall, the referral is the law of intermediate temperatures
+    assert r.refer(5.0, 23.0) == pytest.approx(refer_emf_mv(tc_type, 5.0, 23.0, 0.0), abs=3e-5)
+    # out of the couple's range: NaN (read as invalid by Table.convert), no exception
+    bad = r.refer(500.0, 23.0)
+    assert bad != bad and t.convert(bad) == (None, "invalid")

@@ -88,9 +88,12 @@ def test_table_builds_without_ambiguity_and_the_fake_covers_every_method():
     assert len(d._table) >= len(C.COMMANDS)
 
 
-def test_reserved_subsystem_has_no_upload_yet():
-    assert C.RESERVED == ("TABLe",)
-    assert [r[C.HEADER] for r in C.COMMANDS if r[C.HEADER].startswith("TABLe")] == ["TABLe:CATalog"]
+def test_table_subsystem_holds_the_transfer_commands():
+    # the TABLe subsystem is no longer reserved: catalogue, checksums, upload, download
+    assert C.RESERVED == ()
+    assert [r[C.HEADER] for r in C.COMMANDS if r[C.HEADER].startswith("TABLe")] == [
+        "TABLe:CATalog", "TABLe:CRC", "TABLe:ACTive", "TABLe:UPLoad:BEGin", "TABLe:UPLoad:DATA",
+        "TABLe:UPLoad:NEXT", "TABLe:UPLoad:END", "TABLe:UPLoad:ABORt", "TABLe:DOWNload"]
 
 
 def test_readings_cover_every_state():

@@ -193,10 +193,96 @@ def test_crc_mismatch_names_both_values():
 
 
 def test_unknown_version_is_named():
-    text = reseal(demo_body(**{'"version": 1': '"version": 2'}))
-    assert message(text) == "unsupported table file version 2 (this build reads version 1)"
+    text = reseal(demo_body(**{'"version": 1': '"version": 3'}))
+    assert message(text) == "unsupported table file version 3 (this build reads versions 1 and 2)"
     text = reseal(demo_body(**{'"version": 1': '"version": "1"'}))
-    assert message(text) == "unsupported table file version '1' (this build reads version 1)"
+    assert message(text) == "unsupported table file version '1' (this build reads versions 1 and 2)"
+    text = reseal(demo_body(**{'"version": 1': '"version": 1.0'}))
+    assert message(text) == "unsupported table file version 1 (this build reads versions 1 and 2)"
+    # version 2 must carry its wall temperature
+    text = reseal(demo_body(**{'"version": 1': '"version": 2'}))
+    assert message(text) == "field 'wall_c' is missing (version 2 carries the wall temperature)"
+
+
+# ---------------------------------------------------------------- version 2: the wall model
+
+# invented slopes for the four points (1/K), demo data only
+SMALL_V2 = Table(SMALL.points, "N2", "wren-demo", 165.0, 0.0, "K", "invented v2",
+                 wall_c=22.5, rise_slope_per_k=(-0.0018, -0.0012, 0.0001, -0.0011))
+
+
+def test_version_2_layout_and_round_trip():
+    text = tablefile.dumps(SMALL_V2)
+    body = text[: text.rindex('"crc32"')]
+    assert body == (
+        '{"format": "tcgauge-table", "version": 2,\n'
+        ' "gas": "N2", "profile": "wren-demo", "tc_type": "K", "heater_ma": 165, "ref_c": 0,\n'
+        ' "invalid_margin": 0.15, "noise_mv": 0.05,\n'
+        ' "source": "invented v2",\n'
+        ' "wall_c": 22.5,\n'
+        ' "points": [\n'
+        '  [12, 0.05],\n'
+        '  [7, 2],\n'
+        '  [1.5, 50],\n'
+        '  [0.8, 400]\n'
+        ' ],\n'
+        ' "rise_slope_per_k": [\n'
+        '  -0.0018, -0.0012, 0.0001, -0.0011\n'
+        ' ],\n'
+        ' ')
+    assert text == reseal(body)  # the CRC covers the new fields (zlib as the reference)
+    back = tablefile.loads(text)
+    assert back == SMALL_V2 and back.wall_c == 22.5
+    assert back.rise_slope_per_k == (-0.0018, -0.0012, 0.0001, -0.0011)
+    # the table's own JSON is standard JSON (json module as the reference parser)
+    assert json.loads(text)["rise_slope_per_k"] == [-0.0018, -0.0012, 0.0001, -0.0011]
+
+
+def test_a_table_without_the_wall_model_is_written_as_version_1():
+    assert tablefile.dumps(SMALL).startswith('{"format": "tcgauge-table", "version": 1,\n')
+    wall_only = Table(SMALL.points, "N2", "wren-demo", 165.0, 0.0, "K", "x", wall_c=21.0)
+    text = tablefile.dumps(wall_only)
+    assert '"version": 2,' in text and ' "wall_c": 21,\n' in text
+    assert "rise_slope_per_k" not in text
+    back = tablefile.loads(text)
+    assert back.wall_c == 21.0 and back.rise_slope_per_k is None
+
+
+def test_slopes_interpolate_linearly_in_emf():
+    t = SMALL_V2
+    assert t.rise_slope_at(12.0) == -0.0018 and t.rise_slope_at(0.8) == -0.0011
+    assert t.rise_slope_at(13.0) == -0.0018 and t.rise_slope_at(0.1) == -0.0011  # held beyond
+    # halfway between 7 mV and 1.5 mV: the mean of the two slopes
+    assert t.rise_slope_at(4.25) == pytest.approx(0.5 * (-0.0012 + 0.0001), abs=1e-15)
+    assert SMALL.rise_slope_at(4.25) == 0.0  # no slopes: no correction
+
+
+@pytest.mark.parametrize("old,new,expected", [
+    (' "wall_c": 22.5,', ' "wall_c": "22.5",', "field 'wall_c': expected a number, got '22.5'"),
+    (' "wall_c": 22.5,', ' "wall_c": 400,',
+     "wall temperature must be a finite number within -50..150 C, got 400 C"),
+    ("-0.0018, -0.0012, 0.0001, -0.0011", "-0.0018, -0.0012, 0.0001",
+     "rise slopes: 3 values for 4 points"),
+    ("-0.0018, -0.0012,", '-0.0018, "x",', "field 'rise_slope_per_k[1]': expected a number, got 'x'"),
+    ("-0.0018, -0.0012,", "-0.0018, 0.5,", "point 1: rise slope must be a finite number within "
+                                          "+/-0.1 per K, got 0.5"),
+    (' "wall_c": 22.5,\n', "", "field 'wall_c' is missing (version 2 carries the wall temperature)"),
+    # the first unknown field by name (the same on MicroPython, whose dict order differs)
+    ('"version": 2', '"version": 1', "field 'rise_slope_per_k': not a field of version 1"),
+])
+def test_version_2_field_errors(old, new, expected):
+    text = tablefile.dumps(SMALL_V2)
+    body = text[: text.rindex('"crc32"')]
+    assert old in body
+    assert message(reseal(body.replace(old, new))) == expected
+
+
+def test_slopes_need_the_wall_temperature():
+    from gaugecore.table import TableError
+
+    with pytest.raises(TableError) as err:
+        Table(SMALL.points, "N2", "wren-demo", 165.0, 0.0, "K", rise_slope_per_k=(0.0,) * 4)
+    assert str(err.value) == "rise slopes need the wall temperature they were taken at"
 
 
 def test_format_and_crc_field_errors():

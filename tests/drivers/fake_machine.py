@@ -20,7 +20,7 @@ class Namespace:
 
 class World:
     def __init__(self, pins, emf_at_165_mv=(5.0, 7.0), temp_c=25.0, with_display=True,
-                 dac_eeprom_code=2048):
+                 dac_eeprom_code=2048, with_tc1115=False):
         self.pins_map = pins
         self.clock = fc.FakeClock()
         self.pins = {}
@@ -53,6 +53,9 @@ class World:
             self.sense.ain[2 * k + 1] = (lambda k=k: abs(self.current_a(k)) * self.r_heater_ohm * 0.5)
         self.ads1220.vin[0x0] = lambda: self.emf_v(0)  # AIN0-AIN1
         self.ads1220.vin[0x5] = lambda: self.emf_v(1)  # AIN2-AIN3
+        if with_tc1115:  # the budget option: thermocouples on an ADS1115 at 0x48
+            self.i2c.attach(0x48, self.tc1115)
+            self.tc1115.ain = [lambda: self.emf_v(0), 0.0, lambda: self.emf_v(1), 0.0]
 
     def pin(self, pid):
         if pid not in self.pins:
@@ -108,3 +111,36 @@ class World:
 
         m.Pin, m.SPI, m.I2C, m.PWM = Pin, SPI, I2C, PWM
         return m
+
+
+class HostPort:
+    """The host's end of the USB serial, as gaugecore.service sees a port.
+
+    `send(data)` queues bytes for the device; `read_available()` hands them
+    over; `write(data)` takes at most `budget` bytes a call (None: all), like
+    a link that is sometimes busy; `lines()` returns the complete lines
+    received so far (and forgets them)."""
+
+    def __init__(self, budget=None):
+        self.inbox = b""
+        self.received = b""
+        self.budget = budget
+
+    def send(self, data):
+        self.inbox += data
+
+    def read_available(self):
+        data = self.inbox
+        self.inbox = b""
+        return data
+
+    def write(self, data):
+        k = len(data) if self.budget is None or self.budget > len(data) else self.budget
+        self.received += bytes(data[:k])
+        return k
+
+    def lines(self):
+        text = self.received.decode()
+        cut = text.rfind("\n") + 1
+        self.received = text[cut:].encode()
+        return text[:cut].split("\n")[:-1]

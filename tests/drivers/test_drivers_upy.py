@@ -19,6 +19,8 @@ import sys
 
 import pytest
 
+from gaugecore import record
+
 pytestmark = pytest.mark.upy
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -322,21 +324,36 @@ from boards import pico
 world = fake_machine.World(pico.PINS)
 sys.modules["machine"] = world.module()
 main = load_main()
-app = main.boot(root=ROOT, clock=world.clock)
-end = world.clock.us + 8000000
-while world.clock.us < end:
-    app.step()
-    world.clock.sleep_ms(5)
+port = fake_machine.HostPort(budget=40)
+app = main.boot(root=ROOT, clock=world.clock, port=port)
+
+
+def run(s):
+    end = world.clock.us + int(s * 1000000)
+    while world.clock.us < end:
+        app.step()
+        world.clock.sleep_ms(5)
+
+
+run(6)
+port.send(b"*IDN?\nMEAS? (@1,2)\nMEAS:EMF? (@1,2)\nSYST:ERR:COUN?\nCONF:RATE 5\nSYST:ERR?\nSYST:ERR?\n")
+run(0.5)
+port.send(b"SYST:ERR?\nSTR ON\n")
+run(3)
+port.send(b"STR OFF\n")
+run(0.5)
 out = [[c.state, c.pressure_pa, c.emf_mv, c.cj_c, c.heater_ma, c.seq] for c in app.channels]
-out.append(app.handle(b"*IDN?\nMEAS? (@1,2)\nMEAS:EMF? (@1,2)\nSYST:ERR:COUN?\n"))
+out.append(port.lines())
+out.append([main.rate_max_hz(app.hw["channels"]), app.service.records, app.service.dropped])
 out.append(sorted(world.pins[17].history[:3]))
 print(json.dumps(out))
 '''
 
 
 def test_whole_board_same_under_micropython(upy, tmp_path):
-    """main.py, boards/, drivers/ and the core, booted on the fake board: the
-    readings and protocol replies under MicroPython equal CPython's."""
+    """main.py, boards/, drivers/ and the core, booted on the fake board through
+    gaugecore.assembly.build and served by gaugecore.service.Service: readings,
+    replies, errors and stream records under MicroPython equal CPython's."""
     import importlib.util
     import shutil
 
@@ -374,4 +391,13 @@ def test_whole_board_same_under_micropython(upy, tmp_path):
             sys.modules["machine"] = saved
     assert mpy == cpy
     assert [c[0] for c in cpy[:2]] == ["ok", "ok"]
-    assert cpy[2][0] == "tcgauge,TCGAUGE-2CH,0,0.1.0"
+    lines = cpy[2]
+    assert lines[0] == "tcgauge,TCGAUGE-2CH,0,0.1.0"  # IEEE 488.2 10.14
+    assert lines[3] == "2"  # the boot notes in the error queue
+    assert lines[4] == '-200,"Execution error;heater 1: DAC power-on code set to 0"'
+    assert lines[5] == '-200,"Execution error;heater 2: DAC power-on code set to 0"'
+    # SCPI-1999 -222: the board's ADS1220 at 20 SPS cannot sample two channels at 5 Hz
+    assert lines[6] == '-222,"Data out of range;5 Hz not in 0.1..3.2 Hz"'
+    recs = [record.decode(x) for x in lines[7:]]
+    assert len(recs) >= 10 and [r.seq for r in recs] == list(range(len(recs)))
+    assert cpy[3] == [3.2, len(recs), 0]

@@ -15,6 +15,7 @@ import subprocess
 import sys
 
 TCGAUGE = [sys.executable, "-m", "tcgauge"]
+TORR = 101325.0 / 760.0  # NIST SP 811 B.8
 LINE = re.compile(r"^t=(?P<t>[0-9.]+)s ch=(?P<ch>\d) p=(?P<p>\S+) unit=(?P<unit>\S+) "
                   r"state=(?P<state>\w+) fault=(?P<fault>\S+) sp=(?P<sp>\S+) records=\d+ gaps=\d+ "
                   r"corrupt=\d+ link=(up|down)$")
@@ -23,8 +24,8 @@ LINE = re.compile(r"^t=(?P<t>[0-9.]+)s ch=(?P<ch>\d) p=(?P<p>\S+) unit=(?P<unit>
 def test_demo_runs_without_a_terminal(tmp_path):
     db = str(tmp_path / "demo.db")
     png = str(tmp_path / "demo.png")
-    # 5 s of wall time at x20 = 100 s of the scenario: from over range to well inside the range
-    proc = subprocess.run(TCGAUGE + ["demo", "--seconds", "5", "--speed", "20", "--db", db],
+    # 6 s of wall time at x20 = 120 s of the scenario: from over range through 1..1e-2 Torr
+    proc = subprocess.run(TCGAUGE + ["demo", "--seconds", "6", "--speed", "20", "--db", db],
                           stdin=subprocess.DEVNULL, capture_output=True, text=True, timeout=60,
                           cwd=str(tmp_path))
     assert proc.returncode == 0, proc.stderr
@@ -33,6 +34,11 @@ def test_demo_runs_without_a_terminal(tmp_path):
     assert "Setpoints are process aids, not safety interlocks." in out
     assert "database: %s (run 1, " % db in out
     assert "plot: %s" % png in out
+    # the live view's notes and the plot's legend say which channel is which
+    assert ("# Channel 1 uses the fast-response estimate (heat balance identified at the stored "
+            "vacuum zero); channel 2 reads plain and lags by the tube's time constant.") in out
+    assert ("legend: channel 1: fast response; true pressure (simulator); "
+            "channel 2: plain (tube lag); ") in out
     lines = [LINE.match(ln) for ln in out.splitlines() if ln.startswith("t=")]
     assert lines and all(lines), [ln for ln in out.splitlines() if ln.startswith("t=")][:3]
     ch1 = [m for m in lines if m["ch"] == "1"]
@@ -47,6 +53,17 @@ def test_demo_runs_without_a_terminal(tmp_path):
     n, n_true = conn.execute("SELECT count(*), count(true_pressure_pa) FROM records").fetchone()
     assert n > 100 and n_true == n  # the in-process simulator gives the true pressure
     assert conn.execute("SELECT source FROM runs").fetchone()[0].startswith("simulator sim://")
+    # fast response on channel 1 (the device's stored vacuum zero identified the
+    # tube's heat balance), plain channel 2: worst ratio of reading to true
+    # pressure over 1e-2..1 Torr of the pump-down, either way
+    worst = {}
+    for ch in (1, 2):
+        rows = conn.execute("SELECT pressure_pa, true_pressure_pa, state FROM records WHERE channel = ? "
+                            "AND true_pressure_pa BETWEEN ? AND ?", (ch, 1e-2 * TORR, TORR)).fetchall()
+        assert len(rows) >= 60 and {r[2] for r in rows} == {"ok"}, (ch, len(rows))
+        worst[ch] = max(max(p / t, t / p) for p, t, _ in rows)
+    assert worst[1] <= 1.5, worst  # tracks the true pressure (measured: 1.14)
+    assert worst[2] >= 2.5, worst  # the plain reading lags by the tube's time constant (measured: 3.5)
     with open(png, "rb") as f:
         assert f.read(8) == b"\x89PNG\r\n\x1a\n"  # PNG signature (ISO/IEC 15948, 5.2)
 

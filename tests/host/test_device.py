@@ -111,12 +111,18 @@ def _arg(spec, rig):
     raise AssertionError(kind)
 
 
+# An upload is a sequence (BEGin with the file's length and CRC-32, DATA chunks in order,
+# END?), so its forms cannot take sample arguments one by one: tests/core/test_scpi_table.py
+# and tests/host/test_transfer.py send them in order, with exact replies and refusals.
+UPLOAD = ("TABLe:UPLoad:BEGin", "TABLe:UPLoad:DATA", "TABLe:UPLoad:END")
+
+
 def test_every_command_form_is_answered_without_error(rig):
     seen = 0
     for rec in C.COMMANDS:
         header = rec[C.HEADER].replace("[", "").replace("]", "").replace("#", "1")
-        if rec[C.HEADER] == "*RST":
-            continue  # checked on its own below
+        if rec[C.HEADER] == "*RST" or rec[C.HEADER] in UPLOAD:
+            continue  # *RST: checked on its own below; uploads: see UPLOAD
         if C.is_setting(rec) and rec[C.HEADER] != "CALibrate:ZERO":  # zero: its own test
             args = ",".join(_arg(s, rig) for s in rec[C.ARGS])
             assert rig.ask(header + (" " + args if args else "")) is None
@@ -128,7 +134,8 @@ def test_every_command_form_is_answered_without_error(rig):
             assert reply, header
             assert rig.errors() == [], header
             seen += 1
-    assert seen == sum(len(C.forms(rec)) for rec in C.COMMANDS) - 2  # all but *RST, CAL:ZERO
+    skipped = sum(len(C.forms(rec)) for rec in C.COMMANDS if rec[C.HEADER] in UPLOAD)
+    assert seen == sum(len(C.forms(rec)) for rec in C.COMMANDS) - 2 - skipped  # and *RST, CAL:ZERO
 
 
 def test_exact_replies(rig):

@@ -70,7 +70,7 @@ def test_list_scenarios_and_bad_arguments():
     out = subprocess.run([sys.executable, "-m", "tcgauge", "sim", "--list-scenarios"],
                          capture_output=True, timeout=30, text=True)
     assert out.returncode == 0
-    assert out.stdout.split() == ["ambient-ramp", "gas-change", "pumpdown", "steps", "vent"]
+    assert out.stdout.split() == ["ambient-ramp", "calibration", "gas-change", "pumpdown", "steps", "vent"]
     bad = subprocess.run([sys.executable, "-m", "tcgauge", "sim", "--pty", "--fault", "tc-open"],
                          capture_output=True, timeout=30, text=True)
     assert bad.returncode == 2

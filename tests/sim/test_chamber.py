@@ -110,7 +110,8 @@ def test_scenario_fault_events_are_validated():
 
 
 def test_builtin_scenarios():
-    assert sorted(chamber.SCENARIOS) == ["ambient-ramp", "gas-change", "pumpdown", "steps", "vent"]
+    assert sorted(chamber.SCENARIOS) == ["ambient-ramp", "calibration", "gas-change", "pumpdown", "steps",
+                                         "vent"]
     for name in chamber.SCENARIOS:
         s = chamber.get_scenario(name)
         assert s.name == name and s.duration_s > 0.0
@@ -120,5 +121,5 @@ def test_builtin_scenarios():
     assert chamber.get_scenario("gas-change").gas(61.0) == "He"
     assert chamber.get_scenario("ambient-ramp").ambient_c(360.0) == pytest.approx(27.0, rel=1e-12)
     assert chamber.get_scenario("vent").pressure_pa(120.0) > 0.9 * ATM_PA
-    with pytest.raises(ValueError, match=r"^unknown scenario 'flood' \(known: ambient-ramp, gas-change, "):
+    with pytest.raises(ValueError, match=r"^unknown scenario 'flood' \(known: ambient-ramp, calibration, gas-change, "):
         chamber.get_scenario("flood")

@@ -209,7 +209,15 @@ FNS = {"convert": lambda name, e: _table(name).convert(e),
        "describe": lambda name: _table(name).describe(),
        "limits": lambda name: (_table(name).p_min_pa, _table(name).p_max_pa,
                                _table(name).emf_range_mv, _table(name).emf_invalid_above_mv),
-       "load_text": _load_text, "load_bytes": _load_bytes}
+       "load_text": _load_text, "load_bytes": _load_bytes,
+       "rise_slope_at": lambda name, e: _table(name).rise_slope_at(e),
+       "rise_refer": lambda name, e, t: _rise(name).refer(e, t)}
+from gaugecore.coldjunction import RiseReferral
+RISE = {}
+def _rise(name):
+    if name not in RISE:
+        RISE[name] = RiseReferral(_table(name))
+    return RISE[name]
 """
 
 # Invented curve for generated tables (demo only, like tools/tables/make_demo_table.py):
@@ -241,6 +249,14 @@ def table_files():
     for name, pts, gas, tc_type, ref_c, margin, noise, source in gen:
         t = table.Table(pts, gas, "wren-demo", 140.0, ref_c, tc_type, source, margin, noise)
         files[name] = tablefile.dumps(t)
+    # version 2: a wall temperature without slopes, and one with invented slopes
+    pts = invented_points(9, 11.0, 2.0, 40.0, 0.05, 500.0)
+    t = table.Table(pts, "N2", "wren-demo", 150.0, 0.0, "K", "invented: wall only", wall_c=23.25)
+    files["wall_only.json"] = tablefile.dumps(t)
+    slopes = [-0.0018 + 0.00025 * i for i in range(9)]  # invented
+    t = table.Table(pts, "N2", "wren-demo", 150.0, 0.0, "K", "invented: wall and slopes", wall_c=21.0,
+                    rise_slope_per_k=slopes)
+    files["wall_slopes.json"] = tablefile.dumps(t)
     return files
 
 
@@ -268,6 +284,27 @@ def test_table_convert_grid(upy, table_files):
         calls += [("describe", (name,)), ("limits", (name,)), ("dumps", (name,))]
         for e in emf_grid(t, rnd):
             calls.append(("convert", (name, e)))
+    assert len(calls) > 3000
+    stats = assert_equivalent(TABLE_SETUP, calls, table_files)
+    assert stats["errors"] == 0
+
+
+def test_rise_referral_grid(upy, table_files):
+    # the channel's default compensation: slopes interpolated in EMF and the
+    # rise carried to the table's wall, across the tube's EMF span and beyond
+    rnd = random.Random(5)
+    tablefile = importlib.import_module("gaugecore.tablefile")
+    calls = []
+    for name in ("demo_n2.json", "wall_only.json", "wall_slopes.json", "min4.json"):
+        t = tablefile.loads(table_files[name])
+        lo, hi = t.emf_range_mv
+        emfs = linspace(lo - 0.5, hi + 0.5, 120) + [rnd.uniform(lo, hi) for _ in range(60)]
+        emfs += list(t.segments()[0]) + [0.0, -0.2, 60.0, NAN, INF]
+        for e in emfs:
+            calls.append(("rise_slope_at", (name, e)))
+            for t_cj in (15.0, 22.0, 27.5, 35.0):
+                calls.append(("rise_refer", (name, e, t_cj)))
+        calls += [("rise_refer", (name, 5.0, t_cj)) for t_cj in (-300.0, 2000.0, NAN)]
     assert len(calls) > 3000
     stats = assert_equivalent(TABLE_SETUP, calls, table_files)
     assert stats["errors"] == 0
@@ -319,7 +356,15 @@ def corrupted_texts(text):
         return re.sub(r'"%s": ("[^"]*"|[-+0-9.eE]+)' % key, lambda m: '"%s": %s' % (key, new), body, count=1)
 
     sealed = {
-        "version2": field("version", "2"),
+        "version3": field("version", "3"),
+        "version1": field("version", "1"),  # version 1 has no wall fields
+        "wall_str": field("wall_c", '"22"'),
+        "wall_hot": field("wall_c", "400"),
+        "no_wall": re.sub(r' "wall_c": [-+0-9.eE]+,\n', "", body, count=1),
+        "slope_big": body.replace('"rise_slope_per_k": [\n  ', '"rise_slope_per_k": [\n  0.5, ', 1),
+        "slope_str": body.replace('"rise_slope_per_k": [\n  ', '"rise_slope_per_k": [\n  "x", ', 1),
+        "slope_few": re.sub(r'("rise_slope_per_k": \[\n  )[-+0-9.eE]+, ', r"\1", body, count=1),
+        "slope_null": re.sub(r'"rise_slope_per_k": \[[^\]]*\]', '"rise_slope_per_k": {}', body, count=1),
         "version_str": field("version", '"1"'),
         "version_float": field("version", "1.0"),
         "format": field("format", '"other-table"'),

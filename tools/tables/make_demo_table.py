@@ -3,8 +3,11 @@
 Simulated data of an invented tube, not a measurement: the table comes from
 the simulator's steady state (tcgauge.sim.simtable.make_table) for the
 `wren-demo` profile in N2 at its nominal 165 mA, wall 22 C, EMFs referred
-to 0 C, 40 points log-spaced over 0.02..1000 Pa. So the demo table and the
-simulated demo tube agree, and a controller running the demo reads true.
+to 0 C, 40 points log-spaced over 0.02..1000 Pa, with the wall temperature
+and the per-point rise slopes d ln(dT)/dT_wall the channel's rise referral
+uses (table file version 2). So the demo table and the simulated demo tube
+agree, and a controller running the demo reads true at any room temperature
+to the compensation's residual (tools/bench/ambient.py).
 
 Usage: python tools/tables/make_demo_table.py [OUT]
 """

@@ -276,6 +276,46 @@ class Scenario:
         return [t for t, _ in self.ambient_points]
 
 
+class SetChamber(Scenario):
+    """A chamber whose pressure is set while the simulation runs, as a person at the
+    valves sets it during a calibration: `set_pressure(p_pa, at_s)` steps the
+    pressure at at_s (not before the last setting) and it holds from there.
+
+    Readers on the device's thread see the settings as one tuple, replaced
+    whole by each call, so no lock is needed. Pressure segments (`then`) are
+    not used; gas changes, ambient ramps and faults work as in `Scenario`.
+    """
+
+    def __init__(self, name="calibration", pressure_pa=LARKSPUR.base_pressure_pa, gas="N2",
+                 ambient_c=22.0):
+        Scenario.__init__(self, name, pressure_pa, gas, ambient_c)
+        self._sets = ((0.0, float(pressure_pa)),)
+
+    def then(self, segment):
+        raise ValueError("a SetChamber takes set_pressure(), not segments")
+
+    @property
+    def duration_s(self):
+        """Open-ended: the last setting holds until the run stops (inf)."""
+        return float("inf")
+
+    def set_pressure(self, pressure_pa, at_s):
+        """From at_s on the pressure is pressure_pa (Pa)."""
+        if not pressure_pa > 0.0:
+            raise ValueError("scenario pressure must be > 0 Pa, got %r" % (pressure_pa,))
+        if at_s < self._sets[-1][0]:
+            raise ValueError("set_pressure at %.6g s is before the last setting at %.6g s"
+                             % (at_s, self._sets[-1][0]))
+        self._sets = self._sets + ((float(at_s), float(pressure_pa)),)
+
+    def pressure_pa(self, t_s):
+        sets = self._sets
+        for i in range(len(sets) - 1, -1, -1):
+            if sets[i][0] <= t_s:
+                return sets[i][1]
+        return sets[0][1]
+
+
 def static(pressure_pa=ATM_PA, gas="N2", ambient_c=22.0, name="static"):
     """A chamber that stays at one pressure, gas and temperature."""
     return Scenario(name, pressure_pa, gas, ambient_c)
@@ -313,7 +353,14 @@ def _ambient_ramp():
     return Scenario("ambient-ramp", pressure_pa=1.0).hold(720.0).ambient_ramp(60.0, 600.0, 32.0)
 
 
+def _calibration():
+    # the Larkspur bell jar at base pressure; the pressure is then set step by step
+    # (SetChamber.set_pressure), as `tcgauge calibrate` does on the simulator
+    return SetChamber("calibration")
+
+
 SCENARIOS = {
+    "calibration": _calibration,
     "pumpdown": _pumpdown,
     "steps": _steps,
     "vent": _vent,

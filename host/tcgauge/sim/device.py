@@ -22,6 +22,15 @@ a transmit buffer of TX_BUFFER bytes, like a board's UART; baud=None
 does not limit it. Its files (tables/, store/) live under `root` (a fresh
 temporary folder by default, removed on close): pass the same root to a
 new VirtualDevice to see the stored configuration survive a reset.
+
+`zeroed=True` gives a fresh device what an instrument keeps from its last
+set-up: a vacuum zero per channel (heater current and the heat-balance
+parameters the fast-response estimate needs). `zero_results` computes them
+once per (seed, channels, ADC rate) by running the real zero
+(gaugecore.zero, through Channel.start_zero) on a Bench of the same seed at
+the Larkspur bell jar's base pressure; they reach the device the normal way,
+as the stored configuration's "zero" items (gaugecore.device), which
+`build` loads and applies at boot.
 """
 
 import asyncio
@@ -34,9 +43,13 @@ import threading
 import time
 
 import gaugecore
+from gaugecore import device as devmod
 from gaugecore import tablefile
 from gaugecore.assembly import CONTROL_PERIOD_MS, build
 from gaugecore.catalogue import Catalogue
+from gaugecore.channel import Channel
+from gaugecore.controller import Controller
+from gaugecore.faults import FaultMonitor
 from gaugecore.service import Service
 from gaugecore.store import Store
 
@@ -62,6 +75,11 @@ DEMO_TABLE = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(gaugec
                           "tables", "demo_n2.json")
 
 _table_cache = {}
+_zero_cache = {}
+# Vacuum zero of the stored set-up: the tube settles this long at base first (the
+# heater's soft start and a few time constants of ~11 s), then the zero may take this long.
+ZERO_SETTLE_S = 120.0
+ZERO_TIMEOUT_S = 900.0
 
 
 def table_name(gas):
@@ -80,6 +98,52 @@ def table_text(gas):
             t = make_table(PROFILE, gas, points=40, p_min_pa=0.02, p_max_pa=1000.0, ref_c=0.0)
             _table_cache[gas] = tablefile.dumps(t).encode("utf-8")
     return _table_cache[gas]
+
+
+def _limits(table):
+    """The demo tube's limits for a channel reading `table` (invented heater range)."""
+    return {"nominal_ma": table.heater_ma, "min_ma": MIN_MA, "max_ma": MAX_MA,
+            "zero_emf_mv": table.points[0][0]}
+
+
+def zero_results(seed=0, channels=2, adc_sps=ADC_SPS):
+    """One ZeroResult dict per channel: a vacuum zero of the simulated tube at base.
+
+    A Bench with the device's seed (so each channel has the same simulated
+    electronics as the device's), static at the Larkspur bell jar's base
+    pressure in N2, read through the demo table; each channel settles for
+    ZERO_SETTLE_S, then runs gaugecore.zero (Channel.start_zero). Cached.
+    RuntimeError if a zero is refused.
+    """
+    key = (seed, channels, adc_sps)
+    if key in _zero_cache:
+        return [dict(z) for z in _zero_cache[key]]
+    table = tablefile.loads(table_text("N2"))
+    bench = Bench(PROFILE, scenario=chamber.static(chamber.LARKSPUR.base_pressure_pa), seed=seed,
+                  channels=channels, adc={"data_rate_sps": adc_sps})
+    chans = [Channel(i, hw.tc, hw.cj, hw.heater, hw.relays, table, _limits(table),
+                     heater_ma=table.heater_ma,
+                     monitor=FaultMonitor(emf_rail_mv=hw.tc.full_scale_uv / 1000.0))
+             for i, hw in enumerate(bench.channels)]
+    ctl = Controller(chans, bench.clock)
+    clock = bench.clock
+    zeros = None
+    while True:
+        now = clock.ticks_ms()
+        if zeros is None and now >= ZERO_SETTLE_S * 1000.0:
+            zeros = [c.start_zero(now) for c in chans]
+        if zeros is not None and all(z.state != "running" for z in zeros):
+            break
+        if now > (ZERO_SETTLE_S + ZERO_TIMEOUT_S) * 1000.0:
+            raise RuntimeError("simulated vacuum zero did not finish")
+        ctl.step(now)
+        nxt = min(c.next_ms for c in chans)
+        clock.sleep_ms(max(1, nxt - clock.ticks_ms()))
+    for i, z in enumerate(zeros):
+        if z.result is None:
+            raise RuntimeError("simulated vacuum zero of channel %d refused: %s" % (i + 1, z.reason))
+    _zero_cache[key] = [z.result.to_dict() for z in zeros]
+    return [dict(z) for z in _zero_cache[key]]
 
 
 def parse_fault(text):
@@ -264,11 +328,13 @@ class VirtualDevice:
     'NAME@SECONDS[:CHANNEL]' strings or (name, at_s, channel) tuples,
     channels counted from 1. speed: simulated seconds per wall second.
     root: folder of the device's files; baud: emulated output rate (None:
-    unlimited); adc_sps: the simulated ADC's data rate.
+    unlimited); adc_sps: the simulated ADC's data rate. zeroed: a fresh
+    store (no configuration yet) starts with a vacuum zero per channel
+    (`zero_results`), as an instrument set up before would.
     """
 
     def __init__(self, scenario="pumpdown", gas="N2", seed=0, speed=1.0, faults=(), channels=2,
-                 root=None, baud=BAUD, adc_sps=ADC_SPS):
+                 root=None, baud=BAUD, adc_sps=ADC_SPS, zeroed=False):
         if not speed > 0:
             raise ValueError("speed must be > 0, not %r" % (speed,))
         sc = chamber.get_scenario(scenario)
@@ -296,11 +362,12 @@ class VirtualDevice:
         limits = []
         monitor = []
         for hw in self.bench.channels:
-            limits.append({"nominal_ma": first.heater_ma, "min_ma": MIN_MA, "max_ma": MAX_MA,
-                           "zero_emf_mv": first.points[0][0]})
+            limits.append(_limits(first))
             monitor.append({"emf_rail_mv": hw.tc.full_scale_uv / 1000.0})
-        self.device = build(self.bench.channels, self.bench.clock, Catalogue(tables),
-                            Store(os.path.join(self.root, "store")), limits,
+        store = Store(os.path.join(self.root, "store"))
+        if zeroed:
+            self._store_zero(store, seed, channels, adc_sps, table_name(gas), first.heater_ma)
+        self.device = build(self.bench.channels, self.bench.clock, Catalogue(tables), store, limits,
                             serial="SIM%04d" % (seed % 10000), default_table=table_name(gas),
                             tc_type=first.tc_type, monitor=monitor, sleep_ms=self._sleep_ms)
         self.controller = self.device.controller
@@ -311,6 +378,20 @@ class VirtualDevice:
         self._loop = None
         self._t0 = None
         self._error = None
+
+    def _store_zero(self, store, seed, channels, adc_sps, table, heater_ma):
+        """Write the set-up a zeroed instrument keeps: the default configuration
+        with each channel's zero result and the heater current it found (as
+        gaugecore.device stores a finished zero). A store that already holds a
+        configuration is left as it is."""
+        if os.path.exists(store.paths("config")[0]):
+            return
+        n_relays = sum(len(hw.relays) for hw in self.bench.channels)
+        cfg = devmod.default_config(channels, n_relays, table, heater_ma)
+        zeros = zero_results(seed, channels, adc_sps)
+        cfg["zero"] = zeros
+        cfg["heater_ma"] = [z["heater_ma"] for z in zeros]
+        store.save_config(cfg)
 
     # ---------------------------------------------------------------- pacing
     async def _sleep_ms(self, ms):

@@ -10,6 +10,8 @@ URL: sim://[?option=value&...] with the options of VirtualDevice:
   baud       emulated byte rate of the device's output, 8N1 (default 115200;
              0 = unlimited). pyserial's own `baudrate` is ignored, as loop:// does.
   root       folder for the device's files (default: a temporary one)
+  zeroed     1: the device starts with a stored vacuum zero per channel, as
+             an instrument set up before would (default 0: never zeroed)
 Closing the port stops the device.
 """
 
@@ -17,7 +19,7 @@ import urllib.parse
 
 from serial.serialutil import PortNotOpenError, SerialBase, SerialException, to_bytes
 
-_OPTIONS = ("scenario", "gas", "seed", "speed", "channels", "fault", "baud", "root")
+_OPTIONS = ("scenario", "gas", "seed", "speed", "channels", "fault", "baud", "root", "zeroed")
 
 
 def parse_url(url):
@@ -45,6 +47,10 @@ def parse_url(url):
                 kw[key] = float(value)
             elif key == "baud":
                 kw[key] = int(value) or None
+            elif key == "zeroed":
+                if value not in ("0", "1"):
+                    raise ValueError(value)
+                kw[key] = value == "1"
             else:
                 kw[key] = value
         except ValueError:
