@@ -71,9 +71,9 @@ def test_delay_on_both_transitions_and_restart_on_interruption():
     r = Relay()
     sp = Setpoint(r, 13.3, 20.0, delay_ms=2000)
     # below from t=0; at 1500 one reading above on_pa restarts the wait
-    t = feed(sp, [10.0] * 15)  # t = 0..1400
+    feed(sp, [10.0] * 15)  # t = 0..1400
     sp.update(14.0, "ok", 1500)
-    t = feed(sp, [10.0] * 25, t0=1600)  # condition from 1600: energise at 3600
+    feed(sp, [10.0] * 25, t0=1600)  # condition from 1600: energise at 3600
     assert sp.events == [(3600, True, "below 1.33e+01 Pa for 2000 ms")]
     # de-energising on the other threshold honours the delay too
     feed(sp, [25.0] * 21, t0=5000)  # above off_pa from 5000: release at 7000

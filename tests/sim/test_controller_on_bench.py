@@ -16,14 +16,13 @@ from gaugecore.channel import Channel
 from gaugecore.controller import Controller
 from gaugecore.setpoint import Setpoint
 from gaugecore.zero import ZeroResult
-from tcgauge.sim import chamber
+from tcgauge.sim import chamber, rig
 from tcgauge.sim.bench import Bench
+from tcgauge.sim.rig import BASE_PA, drive, limits  # noqa: F401
 from tcgauge.sim.simtable import make_table
-from tcgauge.sim.tube import steady_state
 
 TORR = 101325.0 / 760.0  # NIST SP 811 B.8
 ACCURACY = 0.10  # stated above
-BASE_PA = chamber.LARKSPUR.base_pressure_pa  # 0.02 Pa, invented demo chamber
 # Invented: the Larkspur bell jar pumped through a throttle valve (0.6 L/s at
 # the jar, gas load scaled to keep the 0.02 Pa base): V/S = 20 s.
 THROTTLED = chamber.Chamber("Larkspur bell jar, throttled", volume_l=12.0, pump_speed_l_s=0.6,
@@ -31,34 +30,8 @@ THROTTLED = chamber.Chamber("Larkspur bell jar, throttled", volume_l=12.0, pump_
 TABLE = make_table("wren-demo", "N2", 64, 0.05, 500.0)
 
 
-def limits():
-    """Heater range of the demo tube (invented) and the zero target: the
-    simulator's steady EMF at the chamber's base pressure, as the table has it."""
-    e_base = float(steady_state("wren-demo", "N2", BASE_PA, 0.165, 22.0, 0.0).emf_mv)
-    return {"nominal_ma": 165.0, "min_ma": 120.0, "max_ma": 200.0, "zero_emf_mv": e_base}
-
-
 def channels(bench, **kw):
-    return [Channel(i, c.tc, c.cj, c.heater, c.relays, TABLE, limits(), **kw)
-            for i, c in enumerate(bench.channels)]
-
-
-def drive(bench, chans, until_ms, on_reading=None, at=None):
-    """Step the channels at each due time until until_ms; `at` = {time_ms: fn}."""
-    ctl = Controller(chans, bench.clock, on_reading=on_reading)
-    clock = bench.clock
-    pending = sorted((at or {}).items())
-    while clock.ticks_ms() < until_ms:
-        now = clock.ticks_ms()
-        while pending and pending[0][0] <= now:
-            pending.pop(0)[1]()
-        ctl.step(now)
-        nxt = min(c.next_ms for c in chans)
-        if pending and pending[0][0] < nxt:
-            nxt = pending[0][0]
-        if nxt > clock.ticks_ms():
-            clock.sleep_ms(nxt - clock.ticks_ms())
-    return ctl
+    return rig.channels(bench, TABLE, **kw)
 
 
 @pytest.fixture(scope="module")
