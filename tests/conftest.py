@@ -4,13 +4,22 @@
   the board does (`gaugecore` itself is installed by pyproject.toml).
 - `support.require_tool(name)` fails, never skips, when an external tool is missing:
   a skip would hide a missing install step in CI.
+- Under CI=true hypothesis runs derandomized (the "ci" profile).
 - `--device-port PORT` opts in to the hardware-in-the-loop tests
   (marker `device`); without it they are skipped, since no board exists in CI.
 """
 
+import os
 import sys
 
 import pytest
+from hypothesis import settings
+
+# CI runs the same hypothesis examples every time (a red run must be reproducible);
+# developers get fresh random examples, and the failures they find are kept in .hypothesis/.
+settings.register_profile("ci", derandomize=True, print_blob=True)
+if os.environ.get("CI"):
+    settings.load_profile("ci")
 
 from support import FIRMWARE, ROOT, require_tool  # noqa: F401  (re-exported for plugins)
 

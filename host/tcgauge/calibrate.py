@@ -45,7 +45,7 @@ Budget components (standard uncertainties, in Pa):
 Correction factor CF = p_cal / p_ind (ISO 27893) where a previous table
 gave an indication p_ind for the same EMF.
 
-Details of ISO 27893 beyond its structure are from memory (domain.md s. 6).
+Details of ISO 27893 beyond its structure are from memory (docs/physics.md s. 6).
 """
 
 import math

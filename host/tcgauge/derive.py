@@ -9,7 +9,7 @@ Steps (`derive_table`):
    - the accommodation ratio alpha_gas / alpha_N2: the N2 fit pins
      alpha_N2 A, so the target gas's free-molecular term scales with that
      ratio; its relative spread is the root sum of squares of the two
-     gases' relative spreads (`Gas.alpha_spread`, domain.md s. 3). The
+     gases' relative spreads (`Gas.alpha_spread`, docs/physics.md s. 3). The
      model is rerun at alpha_gas (1 -/+ u) and the pressure found at the
      same EMF (a band edge, not a standard uncertainty: the spreads are
      ranges, from memory for most gases);

@@ -1,6 +1,6 @@
 """Fit the simulator's tube model to a measured N2 table of one tube.
 
-The model is the lumped heat balance of tcgauge.sim.tube (domain.md s. 2)
+The model is the lumped heat balance of tcgauge.sim.tube (docs/physics.md s. 2)
 on a base profile (default `wren-demo`) whose four lumped loss terms are
 scaled; the fit finds the four scales by least squares in EMF:
 

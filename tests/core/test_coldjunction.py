@@ -1,7 +1,7 @@
 """Cold-junction compensation (gaugecore.coldjunction).
 
 Sources:
-- [M175] NIST Monograph 175 tables (0.001 mV), quoted in /work/shared/domain.md
+- [M175] NIST Monograph 175 tables (0.001 mV), quoted in docs/physics.md
   section 4: K 25 C = 1.000 mV, K 300 C = 12.209 mV.
 - Law of intermediate temperatures, E_AB(T1, T3) = E_AB(T1, T2) + E_AB(T2, T3)
   (standard thermocouple theory, e.g. the introduction of [M175]; also the

@@ -167,7 +167,7 @@ def test_matches_scipy_pchip_on_random_tables(t, fractions):
     ref = scipy_reference(t)
     lo, hi = t.emf_range_mv
     for f in fractions:
-        e = lo + (hi - lo) * f
+        e = min(hi, lo + (hi - lo) * f)  # lo + (hi - lo) * 1.0 can round one ulp above hi
         p, state = t.convert(e)
         assert state == states.OK
         assert p == pytest.approx(10.0 ** float(ref(e)), rel=1e-12)

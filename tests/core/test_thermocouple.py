@@ -6,7 +6,7 @@ Sources:
 - [DB] NIST ITS-90 Thermocouple Database, file allcoeff.tab: the same
   coefficients, the inverse polynomials, their stated error bands and the
   EMF at the ends of each inverse range (those EMFs are table values).
-- [domain] /work/shared/domain.md section 4 (table values quoted from M175).
+- [domain] docs/physics.md section 4 (table values quoted from M175).
 - [PKG] PyPI `thermocouples` 2.1.2 (an independent implementation; returns
   volts, takes volts). Where 2.1.2 disagrees with [DB] (listed in
   PKG_DEFECTS below, each shown by a test) it is not used as the reference.
@@ -80,7 +80,7 @@ BAND_ROUNDING_C = 0.005
 
 # Where thermocouples 2.1.2 differs from [DB] (found by comparing its
 # coefficients with ours; ours agree digit for digit with [DB] and with a
-# second transcription of the database): (type, "fwd"/"inv", segment index).
+# second copy of the database): (type, "fwd"/"inv", segment index).
 PKG_DEFECTS = {
     ("N", "fwd", 0),  # -270..0 C: c4..c8 scaled wrongly (a factor 100)
     ("N", "fwd", 1),  # 0..1300 C: c9 and c10 differ in the 11th digit (harmless, < 1e-6 uV)
@@ -296,7 +296,7 @@ def test_inverse_agrees_with_package_inverse_within_published_bands(tc_type, k, 
 def test_our_inverse_polynomials_within_published_bands(tc_type, k, t_lo, t_hi, err_lo, err_hi):
     # [DB] error bands hold for our copy of every published inverse
     # polynomial (including the ranges where [PKG] is defective), measured
-    # against our exact inverse: checks the transcription of the inverse
+    # against our exact inverse: checks our copy of the inverse
     # coefficients and the exactness of temperature_c together.
     coeffs = tc._RECORDS[tc_type][5][k][1]
     for t_true in grid(t_lo, t_hi, 600):

@@ -134,7 +134,7 @@ def test_relative_sensitivity_in_the_linear_range_follows_knudsen(derived, gas):
 
 @pytest.mark.parametrize("gas,expected", [("He", 0.93), ("Ar", 0.62), ("H2", 1.30)])
 def test_relative_sensitivity_matches_the_domain_values_at_300_k(derived, gas, expected):
-    # domain.md s. 3 [calc]: alpha (gamma+1)/((gamma-1) sqrt(M)) at 300 K, relative to N2.
+    # docs/physics.md s. 3 [calc]: alpha (gamma+1)/((gamma-1) sqrt(M)) at 300 K, relative to N2.
     # Not CO2: its cv rises 25 % between the wall and the filament, so the 300 K value is
     # 11 % off (covered by the test above with the mean cv).
     pts = np.array(derived[gas].table.points)

@@ -18,7 +18,7 @@ PA_PER_TORR = 101325.0 / 760.0  # NIST SP 811, B.8
 
 
 def reversed_read_uv(b, ch, settle_ms=2):
-    """Mean of one read at each heater polarity: cancels the pickup (domain.md s. 7)."""
+    """Mean of one read at each heater polarity: cancels the pickup (docs/physics.md s. 7)."""
     ch.heater.set_polarity(1)
     b.clock.sleep_ms(settle_ms)
     a = ch.tc.read_uv()
@@ -66,7 +66,7 @@ def test_true_pressure_follows_the_closed_form_pumpdown(trace):
 def test_pumpdown_emf_trace_has_the_thermocouple_gauge_shape(trace):
     b, t, p, e = trace
     e_hv = e[-1]
-    # flat near atmosphere: gas conduction is saturated (continuum), domain.md s. 1-2
+    # flat near atmosphere: gas conduction is saturated (continuum), docs/physics.md s. 1-2
     flat = emf_at(p, e, 1e4) - emf_at(p, e, 9e4)
     assert 0.0 <= flat < 0.002 * e_hv
     # steep from 1 Torr to 10 mTorr: the free-molecular (linear-in-p) range
@@ -147,7 +147,7 @@ def test_gas_change_moves_the_reading_to_the_new_gas_curve():
     b.clock.sleep(100.0)
     assert b.true_gas(0) == "Ar"
     assert ch.true_emf_mv() == pytest.approx(ar, rel=1e-3)
-    # argon conducts less heat (relative sensitivity ~0.62 of N2, domain.md s. 3): hotter, larger EMF
+    # argon conducts less heat (relative sensitivity ~0.62 of N2, docs/physics.md s. 3): hotter, larger EMF
     assert ar - n2 > 0.5
 
 

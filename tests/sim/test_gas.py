@@ -77,7 +77,7 @@ def test_mean_conductivity_is_the_integral_mean(name):
     assert gas.mean_conductivity_w_mk(400.0, 400.0) == pytest.approx(gas.conductivity_w_mk(400.0), rel=1e-14)
 
 
-# domain.md section 3, computed there from Knudsen's formula at 300 K with alpha = 1
+# docs/physics.md section 3, computed there from Knudsen's formula at 300 K with alpha = 1
 LAMBDA0_300K = {"N2": 1.19, "air": 1.17, "He": 2.10, "Ar": 0.665, "H2": 4.39, "CO2": 1.26, "H2O": 1.75}
 
 
@@ -111,7 +111,7 @@ def test_accommodation_coefficients():
     # Trott et al., Rev. Sci. Instrum. 82, 035120 (2011): Ar ~0.95, N2 ~0.85, He ~0.45
     assert (get_gas("Ar").alpha, get_gas("N2").alpha, get_gas("He").alpha) == (0.95, 0.85, 0.45)
     assert "Trott" in get_gas("Ar").alpha_source
-    # H2 0.2-0.4, CO2 and H2O 0.8-1.0: from memory, uncertain (domain.md s. 3)
+    # H2 0.2-0.4, CO2 and H2O 0.8-1.0: from memory, uncertain (docs/physics.md s. 3)
     for name, lo, hi in (("H2", 0.2, 0.4), ("CO2", 0.8, 1.0), ("H2O", 0.8, 1.0)):
         gas = get_gas(name)
         assert lo <= gas.alpha <= hi

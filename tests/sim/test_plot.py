@@ -1,6 +1,6 @@
 """The family-of-curves plot: the file, and the physics of the curves it draws.
 
-Ordering checks follow kinetic theory and Fourier conduction (domain.md
+Ordering checks follow kinetic theory and Fourier conduction (docs/physics.md
 ss. 2-3): in the linear range the gas that carries more heat per pascal
 (alpha (gamma+1)/((gamma-1) sqrt(M))) cools the filament more; near
 atmosphere the one with the larger continuum conductivity (CoolProp) does.

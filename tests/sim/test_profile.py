@@ -72,7 +72,7 @@ def test_useful_range_is_about_a_millitorr_to_a_torr(prof):
 
 
 def test_time_constant_is_seconds_and_shorter_at_higher_pressure(prof):
-    # domain.md s. 1 (from memory): response is slow, seconds, slower at low pressure
+    # docs/physics.md s. 1 (from memory): response is slow, seconds, slower at low pressure
     tube = Tube(prof, "N2", t_wall_c=WALL_C)
     tau_hv = tube.tau_s(1e-3, prof.nominal_current_a, WALL_C)
     tau_100 = tube.tau_s(100.0, prof.nominal_current_a, WALL_C)
@@ -81,7 +81,7 @@ def test_time_constant_is_seconds_and_shorter_at_higher_pressure(prof):
 
 
 def test_nominal_current_setup_reaches_the_nominal_emf(prof):
-    # domain.md s. 7 (from memory): a tube is set up at high vacuum by adjusting the current
+    # docs/physics.md s. 7 (from memory): a tube is set up at high vacuum by adjusting the current
     # until the EMF reaches its nominal value; the demo's nominal pair must be consistent
     lo = float(_emf(prof, "N2", 1e-4, 0.95 * prof.nominal_current_a).emf_mv)
     hi = float(_emf(prof, "N2", 1e-4, 1.05 * prof.nominal_current_a).emf_mv)

@@ -237,7 +237,7 @@ def test_set_gas_changes_the_steady_state():
 
 
 def test_relative_sensitivities_follow_kinetic_theory():
-    # domain.md s. 3: in the linear range the sensitivity scales as alpha (gamma+1)/((gamma-1) sqrt(M));
+    # docs/physics.md s. 3: in the linear range the sensitivity scales as alpha (gamma+1)/((gamma-1) sqrt(M));
     # gamma from CoolProp's cv averaged between wall and the high-vacuum filament temperature
     p = np.array([1e-3, 2e-3])
     base = steady_state(PROF, "N2", p, I_A, 22.0)
@@ -287,7 +287,7 @@ def test_convection_is_off_by_default_and_follows_raithby_hollands():
     want = big.continuum_shape_m * get_gas("N2").conductivity_w_mk(t_f) * (k_ratio - 1)
     assert convection_conductance_w_k(big, "N2", p, 60.0, 22.0) == pytest.approx(want, rel=1e-12)
     # below the onset (k_eff/k < 1) nothing is added: low pressure, or the demo's thin wire even at
-    # atmosphere (domain.md s. 2: negligible below about 10 Torr in a centimetre envelope)
+    # atmosphere (docs/physics.md s. 2: negligible below about 10 Torr in a centimetre envelope)
     assert convection_conductance_w_k(big, "N2", 1333.0, 60.0, 22.0) == 0.0
     assert convection_conductance_w_k(PROF, "N2", p, 60.0, 22.0) == 0.0
     on = steady_state(big, "N2", np.array([100.0, 101325.0]), 6.0, convection=True)

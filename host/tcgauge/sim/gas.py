@@ -12,7 +12,7 @@ tools/tables/fit_gas_coeffs.py; the runtime needs no CoolProp.
 
 Accommodation on air-exposed engineering surfaces: Ar 0.95, N2 0.85, He 0.45
 from Trott et al., Rev. Sci. Instrum. 82, 035120 (2011); their spreads, and
-air, H2, CO2, H2O, are from memory and uncertain (/work/shared/domain.md s. 3).
+air, H2, CO2, H2O, are from memory and uncertain (docs/physics.md s. 3).
 
 Every function here uses only arithmetic operators, so it accepts a float or a
 numpy array alike (the tube's per-step path uses plain floats).

@@ -15,7 +15,7 @@ from tcgauge.sim.tube import steady_state
 
 GAS_ORDER = ("H2", "He", "H2O", "N2", "air", "CO2", "Ar")
 _STYLES = {"H2": "-", "He": "-", "H2O": "-.", "N2": "-", "air": "--", "CO2": "-.", "Ar": "-"}
-USEFUL_RANGE_TORR = (1e-3, 1.0)  # domain.md s. 1
+USEFUL_RANGE_TORR = (1e-3, 1.0)  # docs/physics.md s. 1
 _LABELS = {"N2": "N$_2$", "air": "air", "He": "He", "Ar": "Ar", "H2": "H$_2$",
            "CO2": "CO$_2$", "H2O": "H$_2$O (vapour)"}
 

@@ -1,4 +1,4 @@
-"""Lumped heat balance of a thermocouple gauge tube (/work/shared/domain.md s. 2).
+"""Lumped heat balance of a thermocouple gauge tube (docs/physics.md s. 2).
 
     C_th dT1/dt = I^2 R_h(T1) - G_gas(p) dT - eps sigma A (T1^4 - T2^4) - G_solid dT - G_conv dT
 
