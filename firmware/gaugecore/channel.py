@@ -53,6 +53,7 @@ HEATER_TICK_MS = 20
 # dominate the EMF noise, so the compensation uses it low-passed.
 CJ_FILTER_MS = 5000
 CJ_ANCHOR_C = 0.05  # re-evaluate the reference function when t_cj moves this far
+_CJ_LO = -CJ_ANCHOR_C
 RISE = "rise"  # compensation modes (module docstring)
 ITS90 = "its90"
 
@@ -239,6 +240,9 @@ class Channel:
         self.table_wall_c = table_wall_c
         self._set_referral(table)
         self._cj_f = None  # filtered junction temperature
+        self._cj_a = 0.0  # its factor dt / (tf + dt), for these dt and tf
+        self._cj_dt = None
+        self._cj_tf = None
         self._cj_t0 = None  # anchor of the linearised E(t_cj)
         self._cj_e0 = 0.0
         self._cj_s = 0.0
@@ -341,11 +345,13 @@ class Channel:
         if not self._started:
             self.start(now_ms)
         mon = self.monitor
-        reg = self.regulator
-        if now_ms - self._heater_due >= 0:
-            self._heater_due += self.heater_tick_ms
-            if now_ms - self._heater_due >= 0:
-                self._heater_due = now_ms + self.heater_tick_ms
+        h = self._heater_due
+        if now_ms - h >= 0:
+            reg = self.regulator
+            h += self.heater_tick_ms
+            if now_ms - h >= 0:
+                h = now_ms + self.heater_tick_ms
+            self._heater_due = h
             if not self.port.blanked:
                 reg.update(now_ms)
                 # voltage_v is signed with the current: check_heater takes |V|
@@ -357,13 +363,13 @@ class Channel:
             elif self._fault_stopped:
                 self._fault_stopped = False
                 reg.start()
-        new = False
         s = self.sampler
-        if now_ms - s.due_ms >= 0:  # started with the channel, so never None here
-            new = s.step(now_ms)
-        if new:
+        # the sampler was started with the channel, so its due_ms is never None here
+        if now_ms - s.due_ms >= 0 and s.step(now_ms):
+            new = True
             self._on_sample(now_ms)  # check_emf in there marks the data fresh
         else:
+            new = False
             f = mon.fresh_ms  # check_fresh only acts when unset or overdue
             if f is None or now_ms - f > mon.stale_ms:
                 mon.check_fresh(now_ms)
@@ -386,32 +392,43 @@ class Channel:
             sp.update(p, st, now_ms, f)
 
     def _on_sample(self, now_ms):
+        # per sample: attributes read once into locals (a lookup costs about
+        # as much as the arithmetic under MicroPython); the operations and
+        # their order are those of the plain form
         s = self.sampler
         mon = self.monitor
         reg = self.regulator
         heater_on = reg.state != "off"
-        mon.check_adc(s.adc_ok, now_ms, s.raw_uv if s.adc_ok else None)
+        adc_ok = s.adc_ok
+        mon.check_adc(adc_ok, now_ms, s.raw_uv if adc_ok else None)
         t_raw = s.cj_c
         mon.check_cj(t_raw, now_ms)  # the monitor judges the raw sensor
         emf_mv = s.emf_uv * 0.001
-        if s.adc_ok:
+        if adc_ok:
             mon.check_emf(emf_mv, heater_on, now_ms)
         self.emf_mv = emf_mv
         if t_raw is None:
-            self.cj_c = None
+            t_cj = None
         else:
-            f = self._cj_f
+            t_cj = self._cj_f
             tf = self.cj_filter_ms
-            if f is None or tf <= 0:
-                f = t_raw
+            if t_cj is None or tf <= 0:
+                t_cj = t_raw
             else:
-                dt = self.sampler.period_ms
-                f += (dt / (tf + dt)) * (t_raw - f)
-            self._cj_f = f
-            self.cj_c = f
-        self.heater_ma = reg.current_ma if heater_on else 0.0
+                dt = s.period_ms
+                if dt != self._cj_dt or tf != self._cj_tf:
+                    # the filter factor, computed again only when a time changes
+                    self._cj_a = dt / (tf + dt)
+                    self._cj_dt = dt
+                    self._cj_tf = tf
+                t_cj += self._cj_a * (t_raw - t_cj)
+            self._cj_f = t_cj
+        self.cj_c = t_cj
+        heater_ma = reg.current_ma if heater_on else 0.0
+        self.heater_ma = heater_ma
         v = reg.voltage_v
-        self.power_w = self.heater_ma * abs(v) * 0.001 if v is not None else 0.0
+        power_w = heater_ma * abs(v) * 0.001 if v is not None else 0.0
+        self.power_w = power_w
         self.time_ms = now_ms
         self.seq += 1
         if mon.active is not None:
@@ -419,7 +436,6 @@ class Channel:
             self._update_setpoints(now_ms)
             return
         self.fault = None
-        t_cj = self.cj_c
         if t_cj is None:
             self.state = states.INVALID
             self.pressure_pa = None
@@ -427,9 +443,12 @@ class Channel:
             return
         # ColdJunction.refer(emf, t) = emf + E(t) - E(t_ref): E(t) - E(t_ref) is
         # evaluated exactly at an anchor and followed linearly within
-        # CJ_ANCHOR_C of it (the curvature of E leaves < 1e-4 uV there)
+        # CJ_ANCHOR_C of it (the curvature of E leaves < 1e-4 uV there);
+        # t0 - t_cj > A is -(t_cj - t0) > A, i.e. t_cj - t0 < -A, exactly
         t0 = self._cj_t0
-        if t0 is None or t_cj - t0 > CJ_ANCHOR_C or t0 - t_cj > CJ_ANCHOR_C:
+        if t0 is not None:
+            d = t_cj - t0
+        if t0 is None or d > CJ_ANCHOR_C or d < _CJ_LO:
             cjc = self.coldjunction
             t0 = t_cj
             self._cj_e0 = cjc.refer(0.0, t0)
@@ -437,8 +456,9 @@ class Channel:
                 2.0 * CJ_ANCHOR_C
             )
             self._cj_t0 = t0
+            d = t_cj - t0
         # E(t_cj) - E(ref_c), linear about the anchor
-        e_cj_rel = self._cj_e0 + self._cj_s * (t_cj - t0)
+        e_cj_rel = self._cj_e0 + self._cj_s * d
         rr = self.referral
         if rr is None:
             emf_ref = emf_mv + e_cj_rel
@@ -449,7 +469,7 @@ class Channel:
         self.emf_ref_mv = emf_ref
         z = self.zero
         if z is not None:
-            if z.on_sample(now_ms, emf_ref, self.power_w, emf_mv):
+            if z.on_sample(now_ms, emf_ref, power_w, emf_mv):
                 self.state = states.INVALID
                 self.pressure_pa = None
                 self._update_setpoints(now_ms)
@@ -462,7 +482,7 @@ class Channel:
             self.sampler.reset_average()
         if self.fast:
             # the heat balance works on the EMF against the wall (cold junction)
-            eq = self.response.update(emf_mv, self.power_w, now_ms)
+            eq = self.response.update(emf_mv, power_w, now_ms)
             emf_use = emf_ref + (eq - emf_mv)
         else:
             emf_use = emf_ref

@@ -57,6 +57,9 @@ _NAN = float("nan")
 # over -50..800 C) leaves under 0.03 uV there, against ~0.2 uV of converter noise.
 INV_ANCHOR_MV = 0.02
 FWD_ANCHOR_C = 0.5
+_INV_LO = -INV_ANCHOR_MV  # negated once here, not per sample (a float each time)
+_FWD_LO = -FWD_ANCHOR_C
+_exp = math.exp
 
 
 def hot_junction_c(tc_type, emf_meas_mv, t_cj_c):
@@ -130,11 +133,25 @@ class RiseReferral:
         self._fwd_t = None  # anchor of E: temperature, EMF, mV per K
         self._fwd_e = 0.0
         self._fwd_s = 0.0
+        # Table.rise_slope_at's points and slopes (EMF ascending), and the
+        # segment last found: EMF ends, slope at the low end, slope and EMF
+        # differences (an empty interval until the first search)
+        if self.slopes:
+            self._x = table.segments()[0]
+            self._k = table._k
+        else:  # never searched: refer() looks slopes up only when the table has them
+            self._x = ()
+            self._k = ()
+        self._seg_lo = 0.0
+        self._seg_hi = 0.0
+        self._seg_k = 0.0
+        self._seg_dk = 0.0
+        self._seg_dx = 1.0
 
     def _temperature_c(self, e):
-        """E^-1(e), linear about the anchor (INV_ANCHOR_MV)."""
+        """E^-1(e), linear about the anchor (INV_ANCHOR_MV); `refer` inlines it."""
         e0 = self._inv_e
-        if e0 is not None and -INV_ANCHOR_MV <= e - e0 <= INV_ANCHOR_MV:
+        if e0 is not None and _INV_LO <= e - e0 <= INV_ANCHOR_MV:
             return self._inv_t + (e - e0) * self._inv_g
         t = temperature_c(self.tc_type, e)
         self._inv_g = 1000.0 / seebeck_uv_per_k(self.tc_type, t)
@@ -143,15 +160,48 @@ class RiseReferral:
         return t
 
     def _emf_mv(self, t):
-        """E(t), linear about the anchor (FWD_ANCHOR_C)."""
+        """E(t), linear about the anchor (FWD_ANCHOR_C); `refer` inlines it."""
         t0 = self._fwd_t
-        if t0 is not None and -FWD_ANCHOR_C <= t - t0 <= FWD_ANCHOR_C:
+        if t0 is not None and _FWD_LO <= t - t0 <= FWD_ANCHOR_C:
             return self._fwd_e + (t - t0) * self._fwd_s
         e = emf_mv(self.tc_type, t)
         self._fwd_s = 0.001 * seebeck_uv_per_k(self.tc_type, t)
         self._fwd_t = t
         self._fwd_e = e
         return e
+
+    def _slope_at(self, e):
+        """table.rise_slope_at(e), remembering the segment e falls strictly inside.
+
+        The same search and the same arithmetic as Table.rise_slope_at (the
+        table's EMFs rise strictly, so a segment found once holds every EMF
+        strictly between its ends): `refer` evaluates a remembered segment
+        inline and calls this only when the EMF has left it.
+        """
+        k = self._k
+        x = self._x
+        hi = len(x) - 1
+        if not e < x[hi]:  # also NaN
+            return k[hi]
+        if not e > x[0]:
+            return k[0]
+        lo = 0
+        while hi - lo > 1:
+            mid = (lo + hi) >> 1
+            if x[mid] <= e:
+                lo = mid
+            else:
+                hi = mid
+        xl = x[lo]
+        kl = k[lo]
+        dk = k[hi] - kl
+        dx = x[hi] - xl
+        self._seg_lo = xl
+        self._seg_hi = x[hi]
+        self._seg_k = kl
+        self._seg_dk = dk
+        self._seg_dx = dx
+        return kl + dk * (e - xl) / dx
 
     def refer(self, emf_meas_mv, t_cj_c, e_cj_mv=None):
         """Table EMF (mV) for an EMF measured against a junction at t_cj_c.
@@ -161,24 +211,65 @@ class RiseReferral:
         converter's rail, before the fault monitor has judged it) gives NaN,
         which Table.convert reads as invalid.
         """
+        # per sample: the anchors of E^-1 and E (_temperature_c, _emf_mv) and
+        # the slope segment (_slope_at) are inlined, the same operations in
+        # the same order; a call costs more than the arithmetic under MicroPython
         try:
-            return self._refer(emf_meas_mv, t_cj_c, e_cj_mv)
+            if e_cj_mv is None:
+                e_cj_mv = emf_mv(self.tc_type, t_cj_c)
+            e = emf_meas_mv + e_cj_mv
+            e0 = self._inv_e
+            if e0 is None:
+                t = self._temperature_c(e)
+            else:
+                de = e - e0  # once: the test and the line share it
+                if _INV_LO <= de <= INV_ANCHOR_MV:
+                    t = self._inv_t + de * self._inv_g
+                else:
+                    t = self._temperature_c(e)
+            rise = t - t_cj_c
+            rise_ref = rise
+            wall = self.wall_c
+            if self.slopes:
+                # (-k) * d == k * (-d) exactly; wall - t_cj == -(t_cj - wall)
+                # but for the sign of a zero, which exp(+-0) = 1 makes moot
+                nd = wall - t_cj_c
+                e = emf_meas_mv + self._e_wall_mv
+                xl = self._seg_lo
+                if xl < e < self._seg_hi:
+                    k = self._seg_k + self._seg_dk * (e - xl) / self._seg_dx
+                else:
+                    k = self._slope_at(e)
+                rise_ref = rise * _exp(k * nd)
+                t = wall + rise_ref
+                t0 = self._fwd_t
+                if t0 is None:
+                    e = self._emf_mv(t)
+                else:
+                    de = t - t0
+                    if _FWD_LO <= de <= FWD_ANCHOR_C:
+                        e = self._fwd_e + de * self._fwd_s
+                    else:
+                        e = self._emf_mv(t)
+                e = e - self.emf_ref_mv
+                xl = self._seg_lo
+                if xl < e < self._seg_hi:
+                    k = self._seg_k + self._seg_dk * (e - xl) / self._seg_dx
+                else:
+                    k = self._slope_at(e)
+                rise_ref = rise * _exp(k * nd)
+            self.rise_c = rise
+            self.rise_ref_c = rise_ref
+            t = wall + rise_ref
+            t0 = self._fwd_t
+            if t0 is None:
+                e = self._emf_mv(t)
+            else:
+                de = t - t0
+                if _FWD_LO <= de <= FWD_ANCHOR_C:
+                    e = self._fwd_e + de * self._fwd_s
+                else:
+                    e = self._emf_mv(t)
+            return e - self.emf_ref_mv
         except ValueError:
             return _NAN
-
-    def _refer(self, emf_meas_mv, t_cj_c, e_cj_mv):
-        if e_cj_mv is None:
-            e_cj_mv = emf_mv(self.tc_type, t_cj_c)
-        rise = self._temperature_c(emf_meas_mv + e_cj_mv) - t_cj_c
-        rise_ref = rise
-        wall = self.wall_c
-        if self.slopes:
-            d = t_cj_c - wall
-            table = self.table
-            k = table.rise_slope_at(emf_meas_mv + self._e_wall_mv)
-            rise_ref = rise * math.exp(-k * d)
-            k = table.rise_slope_at(self._emf_mv(wall + rise_ref) - self.emf_ref_mv)
-            rise_ref = rise * math.exp(-k * d)
-        self.rise_c = rise
-        self.rise_ref_c = rise_ref
-        return self._emf_mv(wall + rise_ref) - self.emf_ref_mv

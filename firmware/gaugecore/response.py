@@ -79,6 +79,13 @@ class FastResponse:
         self.max_gain = float(max_gain)
         self.hold_ms = hold_ms
         self.hold_band_mv = float(hold_band_mv)
+        # per-sample constants, exact: 4 a2 (of 4 a2 P), -band, and the
+        # filter factors for the last dt (None: compute at the next update)
+        self._a2_x4 = 4.0 * self.a2_w_per_mv2
+        self._neg_band_mv = -self.hold_band_mv
+        self._dt_ms = None
+        self._a = 0.0
+        self._hold_a = 0.0
 
     def reset(self):
         """Forget the filter history (the next update starts afresh)."""
@@ -91,47 +98,61 @@ class FastResponse:
 
     def update(self, emf_mv, power_w, now_ms):
         """Feed one sample (EMF against the wall, heater power); return E_eq in mV."""
-        if self._last_ms is None:
+        last = self._last_ms
+        if last is None:
             self._x1 = emf_mv
             self._x2 = emf_mv
             self._y = emf_mv
             self._last_ms = now_ms
             self.emf_eq_mv = emf_mv
             return emf_mv
-        dt_ms = now_ms - self._last_ms
+        dt_ms = now_ms - last
         self._last_ms = now_ms
         if dt_ms <= 0:
             return self.emf_eq_mv
         tf_ms = self.filter_ms
-        a = dt_ms / (tf_ms + dt_ms)  # backward-Euler first-order low-pass
-        self._x1 += a * (emf_mv - self._x1)
-        x2 = self._x2 + a * (self._x1 - self._x2)
+        if dt_ms != self._dt_ms:
+            # the filter factors depend on dt alone (configure clears them):
+            # computed once per sample period, not per sample
+            self._a = dt_ms / (tf_ms + dt_ms)  # backward-Euler first-order low-pass
+            self._hold_a = dt_ms / (self.hold_ms + dt_ms)
+            self._dt_ms = dt_ms
+        a = self._a
+        x1 = self._x1
+        x1 += a * (emf_mv - x1)
+        self._x1 = x1
+        x2 = self._x2
+        x2 = x2 + a * (x1 - x2)
         self._x2 = x2
-        d = (self._x1 - x2) * 1000.0 / tf_ms
+        d = (x1 - x2) * 1000.0 / tf_ms
         self.dedt_mv_s = d
         est = x2
         c_e = self.c_e_j_per_mv
         if c_e > 0.0 and power_w > 0.0 and x2 > 0.0:
             a2 = self.a2_w_per_mv2
             g = (power_w - a2 * x2 * x2 - c_e * d) / x2
-            disc = g * g + 4.0 * a2 * power_w
+            disc = g * g + self._a2_x4 * power_w
+            mg = self.max_gain
+            hi = x2 * mg
             if g > 0.0 and disc > 0.0:
                 est = 2.0 * power_w / (g + disc ** 0.5)
             else:
-                est = x2 * self.max_gain
-            hi = x2 * self.max_gain
-            lo = x2 / self.max_gain
+                est = hi
             if est > hi:
                 est = hi
-            elif est < lo:
-                est = lo
-        if self.hold_ms > 0:
-            diff = est - self._y
-            if diff > self.hold_band_mv or diff < -self.hold_band_mv:
-                self._y = est
             else:
-                self._y += (dt_ms / (self.hold_ms + dt_ms)) * diff
-            est = self._y
+                lo = x2 / mg  # only where it is compared
+                if est < lo:  # noqa: PLR1730  (max() is a call, and differs on NaN)
+                    est = lo
+        if self.hold_ms > 0:
+            y = self._y
+            diff = est - y
+            if diff > self.hold_band_mv or diff < self._neg_band_mv:
+                y = est
+            else:
+                y += self._hold_a * diff
+            self._y = y
+            est = y
         self.emf_eq_mv = est
         return est
 

@@ -119,10 +119,13 @@ class Sampler:
     def step(self, now_ms):
         """Do whatever is due at `now_ms`; True when a new sample is complete."""
         # one call per phase: the reads and the averaging are inlined (a call
-        # costs more than the rest of a phase under MicroPython)
-        if self.due_ms is None:
+        # costs more than the rest of a phase under MicroPython), attributes
+        # read once into locals, and no range object for the usual single read
+        due = self.due_ms
+        if due is None:
             self.start(now_ms)
-        if now_ms - self.due_ms < 0:
+            due = now_ms
+        if now_ms - due < 0:
             return False
         if self._phase == _WAIT:
             if now_ms - self._period_ms_due >= self.period_ms:
@@ -144,17 +147,25 @@ class Sampler:
                 return False
         # _SETTLE ends when its due time is reached: read now
         tc = self.tc
-        for _ in range(self.reads):
+        reads = self.reads
+        if reads == 1:
             try:
                 self._acc_uv += tc.read_uv()
             except OSError:
                 self._ok = False
+        else:
+            for _ in range(reads):
+                try:
+                    self._acc_uv += tc.read_uv()
+                except OSError:
+                    self._ok = False
         count = self._count + 1
         self._count = count
         if self.blanking:
             self.heater.blank(False)
             self.blanking = False
-        if count < self._n_reads:
+        n_reads = self._n_reads
+        if count < n_reads:
             sign = -self._sign
             self._sign = sign
             self.heater.set_polarity(sign)
@@ -165,7 +176,7 @@ class Sampler:
         ok = self._ok
         self.adc_ok = ok
         if ok:
-            value = self._acc_uv / (self._n_reads * self.reads)
+            value = self._acc_uv / (n_reads * reads)
             self.raw_uv = value
             n = self._avg_n
             if n == 1:

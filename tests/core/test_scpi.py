@@ -456,7 +456,12 @@ def test_fuzz_never_raises_and_answers_or_queues(lines, data):
         new_errors = dev.pushed - pushed
         text = raw if isinstance(raw, str) else raw.decode("latin-1")
         units_ = _query_units(text) if text.strip() else []
-        if units_:
+        printable = isinstance(raw, str) or all(32 <= b <= 126 or b in (9, 10, 13) for b in raw)
+        if printable and len(text.rstrip("\r\n")) > dev.max_line:
+            # an over-long line is refused whole: no reply, one -363 (SCPI-1999 21.8)
+            assert reply is None and new_errors == 1, (raw, reply)
+            assert any(code == C.E_INPUT_OVERRUN for code, _ in dev.errors())
+        elif units_:
             # every query unit is answered or queues an error
             n_queries = sum(1 for u in units_ if u.strip().split(" ")[0].endswith("?"))
             n_replies = len(scpi.split_top(reply, ";")) if reply is not None else 0
