@@ -133,15 +133,9 @@ class RiseReferral:
         self._fwd_t = None  # anchor of E: temperature, EMF, mV per K
         self._fwd_e = 0.0
         self._fwd_s = 0.0
-        # Table.rise_slope_at's points and slopes (EMF ascending), and the
-        # segment last found: EMF ends, slope at the low end, slope and EMF
-        # differences (an empty interval until the first search)
-        if self.slopes:
-            self._x = table.segments()[0]
-            self._k = table._k
-        else:  # never searched: refer() looks slopes up only when the table has them
-            self._x = ()
-            self._k = ()
+        # the rise-slope segment last found (Table.rise_segment): EMF ends,
+        # slope at the low end, slope and EMF differences (an empty interval
+        # until the first search)
         self._seg_lo = 0.0
         self._seg_hi = 0.0
         self._seg_k = 0.0
@@ -173,25 +167,17 @@ class RiseReferral:
     def _slope_at(self, e):
         """table.rise_slope_at(e), remembering the segment e falls strictly inside.
 
-        The same search and the same arithmetic as Table.rise_slope_at (the
+        Table.rise_segment's search and Table.rise_slope_at's arithmetic (the
         table's EMFs rise strictly, so a segment found once holds every EMF
         strictly between its ends): `refer` evaluates a remembered segment
         inline and calls this only when the EMF has left it.
         """
-        k = self._k
-        x = self._x
-        hi = len(x) - 1
-        if not e < x[hi]:  # also NaN
-            return k[hi]
-        if not e > x[0]:
+        lo, x, k = self.table.rise_segment(e)
+        if lo < 0:
             return k[0]
-        lo = 0
-        while hi - lo > 1:
-            mid = (lo + hi) >> 1
-            if x[mid] <= e:
-                lo = mid
-            else:
-                hi = mid
+        hi = lo + 1
+        if hi == len(x):
+            return k[lo]
         xl = x[lo]
         kl = k[lo]
         dk = k[hi] - kl

@@ -273,18 +273,17 @@ class Table:
             out.append(k)
         return tuple(out)
 
-    def rise_slope_at(self, emf_mv):
-        """d ln(dT)/d T_wall (1/K) at a table EMF: linear between the points,
-        the end value beyond them; 0.0 when the table has no rise slopes."""
-        k = self._k
-        if k is None:
-            return 0.0
+    def rise_segment(self, emf_mv):
+        """Rise-slope segment of a table EMF: (lo, x, k), x[lo] <= emf_mv < x[lo + 1],
+        with x the EMFs and k the rise slopes in ascending EMF order; lo is -1 at or
+        below the first point, len(x) - 1 at or above the last (also for NaN).
+        The table must have rise slopes."""
         x = self._x
         hi = len(x) - 1
         if not emf_mv < x[hi]:  # also NaN
-            return k[hi]
+            return hi, x, self._k
         if not emf_mv > x[0]:
-            return k[0]
+            return -1, x, self._k
         lo = 0
         while hi - lo > 1:
             mid = (lo + hi) >> 1
@@ -292,6 +291,19 @@ class Table:
                 lo = mid
             else:
                 hi = mid
+        return lo, x, self._k
+
+    def rise_slope_at(self, emf_mv):
+        """d ln(dT)/d T_wall (1/K) at a table EMF: linear between the points,
+        the end value beyond them; 0.0 when the table has no rise slopes."""
+        if self._k is None:
+            return 0.0
+        lo, x, k = self.rise_segment(emf_mv)
+        if lo < 0:
+            return k[0]
+        hi = lo + 1
+        if hi == len(x):
+            return k[lo]
         return k[lo] + (k[hi] - k[lo]) * (emf_mv - x[lo]) / (x[hi] - x[lo])
 
     def convert(self, emf_mv):
