@@ -88,6 +88,9 @@ COMMANDS = (
     ("SYSTem:ERRor[:NEXT]", (), (), None, "_error", R_TEXT, "oldest error: number,\"message\" (0,\"No error\")"),
     ("SYSTem:ERRor:COUNt", (), (), None, "_error_count", R_INT, "number of errors in the queue"),
     ("SYSTem:VERSion", (), (), None, "_version", R_TEXT, "SCPI version this device follows"),
+    # diagnostics of the board itself
+    ("DIAGnostic:MEMory:FREE", (), (), None, "memory_free", R_INT,
+     "free heap in bytes after a garbage collection; -1 where the interpreter cannot tell"),
     # measurement, per channel
     ("MEASure[:PRESsure]", (), (_ALL,), None, "pressure", R_READING,
      "pressure in the selected unit with its state and fault; NAN when there is no number"),

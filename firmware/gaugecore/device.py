@@ -535,6 +535,14 @@ class Device:
     def set_stream(self, on):
         self.streaming = bool(on)
 
+    def memory_free(self):
+        """DIAG:MEM:FREE?: free heap bytes after a collection (gc.mem_free); -1 under CPython."""
+        import gc
+
+        gc.collect()
+        free = getattr(gc, "mem_free", None)  # MicroPython only
+        return -1 if free is None else free()
+
     def tables(self):
         """Names of the tables in the catalogue."""
         return self.catalogue.names()

@@ -46,11 +46,12 @@ MIN_POINTS = const(4)
 # held in a tuple (point order) and a list (EMF order): 16 + 2*4 = 24 bytes,
 # 180 bytes a point. 128 points are then about 23 kB, plus a few kB while the
 # JSON file is parsed: about an eighth of the ~190 kB heap (from memory) of an
-# RP2040-class board, room for two channels' tables. Real tube tables have 20
-# to 60 points. Measured under the MicroPython 1.27 WASM build (gc.mem_alloc
-# differences after gc.collect), a 128-point table takes 78 kB, 88 kB with the
-# wall model (about 600 and 680 bytes a point): more than this count, so take
-# the budget from a measurement on the board before raising MAX_POINTS.
+# RP2040-class board, room for two channels' tables. Measured under the
+# MicroPython 1.27 WASM build (gc.mem_alloc after an await and gc.collect, as
+# tests/upy/test_controller_upy.py does; a collect inside one synchronous
+# stretch frees nothing in that build and once read 78 kB a table): 168 bytes
+# a point with the wall model, and two channels with two 128-point tables,
+# their setpoints and the controller hold 53 kB (the test bounds it by 64 kB).
 MAX_POINTS = const(128)
 # |d ln(dT)/d T_wall| above this is not a tube's heat balance (10 % of the
 # rise per kelvin of wall; the demo tube's is below 0.2 %/K): a wrong column.

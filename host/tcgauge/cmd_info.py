@@ -1,8 +1,9 @@
 """`tcgauge info --port PORT`: the board's identity and firmware version (tcgauge.identity).
 
-Prints the *IDN? fields, the SCPI version and the host's version. When the
-firmware's version differs from the host's, a warning goes to stderr and the
-firmware line is marked; the exit status stays 0 (the board answered).
+Prints the *IDN? fields, the SCPI version, the board's free heap and the
+host's version. When the firmware's version differs from the host's, a
+warning goes to stderr and the firmware line is marked; a board short of heap
+gets a warning too; the exit status stays 0 (the board answered).
 """
 
 import sys
@@ -26,7 +27,7 @@ def open_port(name):
 
 def _cmd(args):
     from tcgauge.client import Client
-    from tcgauge.identity import describe, identify, version_warning
+    from tcgauge.identity import describe, heap_warning, identify, version_warning
     from tcgauge.link import Link, LinkTimeout
 
     port = open_port(args.port)
@@ -38,15 +39,15 @@ def _cmd(args):
     finally:
         port.close()
     sys.stdout.write("port      %s\n" % args.port + describe(info))
-    warning = version_warning(info)
-    if warning:
-        print("tcgauge: warning: %s" % warning, file=sys.stderr)
+    for warning in (version_warning(info), heap_warning(info)):
+        if warning:
+            print("tcgauge: warning: %s" % warning, file=sys.stderr)
     return 0
 
 
 def register(subparsers):
     """Add the `info` verb."""
-    p = subparsers.add_parser("info", help="show the board's identity and firmware version",
+    p = subparsers.add_parser("info", help="show the board's identity, firmware version and free heap",
                               description=__doc__.split("\n\n")[0])
     p.add_argument("--port", required=True, help="serial port or URL (e.g. /dev/ttyACM0, sim://)")
     p.add_argument("--timeout", type=float, default=2.0, metavar="S",

@@ -178,6 +178,10 @@ class FakeFacade:
         self._log("set_stream", on)
         self.streaming = on
 
+    def memory_free(self):
+        self._log("memory_free")
+        return 123456
+
     def tables(self):
         self._log("tables")
         return ["wren-demo", "wren-demo-ar"]

@@ -88,6 +88,12 @@ def test_esr_class_bits(dev, fake):
     assert dev.handle_line("*ESR?") == "8"
 
 
+def test_memory_query_reaches_the_facade(dev):
+    assert dev.handle_line("DIAG:MEM:FREE?") == "123456"  # NR1 from the fake facade
+    assert dev.handle_line("diagnostic:memory:free?") == "123456"
+    assert dev.handle_line("SYST:ERR?") == '0,"No error"'
+
+
 def test_system_version_and_error_forms(dev):
     assert dev.handle_line("SYST:VERS?") == "1999.0"
     assert dev.handle_line("system:version?") == "1999.0"

@@ -45,6 +45,18 @@ def client(device_port):
             port.close()
 
 
+def test_board_has_heap_to_spare(client):
+    # DIAG:MEM:FREE? is MicroPython's gc.mem_free() after a collection; a board
+    # that cannot take the largest table upload is reported by `tcgauge info`
+    from tcgauge.identity import LOW_HEAP_BYTES
+
+    free = client.memory_free()
+    if free == -1:  # only the virtual device (CPython) cannot tell
+        assert client.idn()[2].startswith("SIM")
+        return
+    assert free >= LOW_HEAP_BYTES, "%d bytes free, %d wanted (tools/bench/heap.py)" % (free, LOW_HEAP_BYTES)
+
+
 def _channels(client):
     return len(client.table())
 

@@ -57,6 +57,16 @@ class World:
             self.i2c.attach(0x48, self.tc1115)
             self.tc1115.ain = [lambda: self.emf_v(0), 0.0, lambda: self.emf_v(1), 0.0]
 
+    def forget(self):
+        """Empty every record the fakes keep (pin histories, chip logs), for heap measurements."""
+        chips = [self.ads1220, self.ads1220.drdy, self.sense, self.tc1115, self.tmp117, self.oled]
+        chips += self.dacs + self.pwms
+        for obj in chips + list(self.pins.values()):
+            for name in ("history", "log", "conversions", "starts", "writes", "commands", "duties"):
+                rec = getattr(obj, name, None)
+                if isinstance(rec, list):
+                    del rec[: len(rec) - 1 if name == "duties" else len(rec)]  # a PWM reads its last duty
+
     def pin(self, pid):
         if pid not in self.pins:
             self.pins[pid] = fc.FakePin(str(pid), 0, self.clock)

@@ -315,6 +315,19 @@ def test_display_through_micropython_framebuf(upy):
     assert rows[3:] == [0, 0, 0, 0, 0]
 
 
+def board_files():
+    """/data for a board run: the fakes, firmware/board.json and the demo table under board/."""
+    data = files()
+    with open(os.path.join(HERE, "fake_machine.py")) as f:
+        data["fake_machine.py"] = f.read()
+    fw = os.path.join(ROOT, "firmware")
+    with open(os.path.join(fw, "board.json")) as f:
+        data["board/board.json"] = f.read()
+    with open(os.path.join(fw, "tables", "demo_n2.json")) as f:
+        data["board/tables/demo_n2.json"] = f.read()
+    return data
+
+
 BOARD = r'''
 import sys, json
 if "/data" not in sys.path:
@@ -358,14 +371,7 @@ def test_whole_board_same_under_micropython(upy, tmp_path):
     import shutil
 
     fw = os.path.join(ROOT, "firmware")
-    data = files()
-    with open(os.path.join(HERE, "fake_machine.py")) as f:
-        data["fake_machine.py"] = f.read()
-    with open(os.path.join(fw, "board.json")) as f:
-        data["board/board.json"] = f.read()
-    with open(os.path.join(fw, "tables", "demo_n2.json")) as f:
-        data["board/tables/demo_n2.json"] = f.read()
-    mpy = upy.run_json('ROOT = "/data/board/"\nload_main = lambda: __import__("main")\n' + BOARD, files=data)
+    mpy = upy.run_json('ROOT = "/data/board/"\nload_main = lambda: __import__("main")\n' + BOARD, files=board_files())
 
     (tmp_path / "tables").mkdir()
     shutil.copy(os.path.join(fw, "board.json"), str(tmp_path))
@@ -401,3 +407,40 @@ def test_whole_board_same_under_micropython(upy, tmp_path):
     recs = [record.decode(x) for x in lines[7:]]
     assert len(recs) >= 10 and [r.seq for r in recs] == list(range(len(recs)))
     assert cpy[3] == [3.2, len(recs), 0]
+
+
+MEMORY = r'''
+import sys, json, gc
+if "/data" not in sys.path:
+    sys.path.append("/data")
+import fake_machine
+from boards import pico
+world = fake_machine.World(pico.PINS)
+sys.modules["machine"] = world.module()
+main = __import__("main")
+port = fake_machine.HostPort()
+app = main.boot(root="/data/board/", clock=world.clock, port=port)
+for k in range(200):
+    app.step()
+    world.clock.sleep_ms(5)
+port.lines()
+port.send(b"*CLS\nDIAG:MEM:FREE?\nSYST:ERR?\n")  # *CLS: the boot notes out of the queue
+for k in range(20):
+    app.step()
+    world.clock.sleep_ms(5)
+lines = port.lines()
+direct = app.device.memory_free()
+free = gc.mem_free()
+print(json.dumps([lines, direct, free, free + gc.mem_alloc()]))
+'''
+
+
+def test_board_reports_its_free_heap_under_micropython(upy):
+    """DIAG:MEM:FREE? on the booted board is MicroPython's own gc.mem_free()
+    after a collection (the interpreter's documented meaning of the number)."""
+    lines, direct, free, heap = upy.run_json(MEMORY, files=board_files())
+    assert lines[1] == '0,"No error"'
+    reported = int(lines[0])  # NR1
+    assert 0 < reported < heap
+    # the facade's figure is gc.mem_free() itself: nothing is allocated between the two reads
+    assert 0 <= direct - free < 256, (direct, free)

@@ -39,11 +39,12 @@ class ScriptedPort:
         self.closed = True
 
 
-def _script(firmware):
+def _script(firmware, heap='40000;0,"No error"'):
     # *IDN? fields per IEEE 488.2 10.14; each client query carries ;:SYST:ERR? (tcgauge.client)
     return [
         ("*IDN?;:SYST:ERR?", 'tcgauge,TCGAUGE-2CH,WREN-0042,%s;0,"No error"' % firmware),
         ("SYST:VERS?;:SYST:ERR?", '1999.0;0,"No error"'),
+        ("DIAG:MEM:FREE?;:SYST:ERR?", heap),
     ]
 
 
@@ -58,6 +59,7 @@ def test_info_on_the_virtual_device(capsys):
         "serial    SIM0007",
         "firmware  %s" % VERSION,
         "scpi      1999.0",  # SCPI-1999 Vol. 1 21.21
+        "heap      not known (the interpreter cannot tell)",  # the virtual device runs under CPython
         "host      %s" % VERSION,
     ]
     assert err == ""
@@ -69,6 +71,34 @@ def test_info_matching_version_from_a_scripted_port(capsys, monkeypatch):
     assert main(["info", "--port", "COM9"]) == 0
     out, err = capsys.readouterr()
     assert "serial    WREN-0042\nfirmware  %s\n" % VERSION in out
+    assert "heap      40000 bytes free\n" in out
+    assert err == ""
+    assert port.unused == [] and port.closed
+
+
+def test_info_warns_when_the_board_is_short_of_heap(capsys, monkeypatch):
+    from tcgauge.identity import LOW_HEAP_BYTES
+
+    # the largest upload: 16384 bytes of file text + 128 points x 168 bytes of table
+    assert LOW_HEAP_BYTES == 16384 + 128 * 168
+    port = ScriptedPort(_script(VERSION, heap='%d;0,"No error"' % (LOW_HEAP_BYTES - 1)))
+    monkeypatch.setattr(cmd_info, "open_port", lambda name: port)
+    assert main(["info", "--port", "COM9"]) == 0
+    out, err = capsys.readouterr()
+    assert "heap      37887 bytes free\n" in out
+    assert err == ("tcgauge: warning: the board has only 37887 bytes of heap free (37888 wanted): a table "
+                   "upload may run out of memory; use a frozen firmware build (firmware/manifest.py) or a "
+                   "board with more RAM\n")
+    assert port.unused == [] and port.closed
+
+
+def test_info_on_firmware_without_the_memory_query(capsys, monkeypatch):
+    # SCPI-1999 Vol. 1 21.8.9: an unknown header is error -113
+    port = ScriptedPort(_script(VERSION, heap=';-113,"Undefined header"') + [(":SYST:ERR?", '0,"No error"')])
+    monkeypatch.setattr(cmd_info, "open_port", lambda name: port)
+    assert main(["info", "--port", "COM9"]) == 0
+    out, err = capsys.readouterr()
+    assert "heap      not reported (firmware without DIAG:MEM:FREE?)\n" in out
     assert err == ""
     assert port.unused == [] and port.closed
 

@@ -17,6 +17,7 @@ import pytest
 
 from gaugecore import tablefile
 from gaugecore.controller import Controller
+from gaugecore.table import MAX_POINTS
 from tcgauge.sim import chamber
 from tcgauge.sim.bench import Bench
 from tcgauge.sim.simtable import make_table
@@ -349,8 +350,8 @@ print(json.dumps({"code": code, "start": start, "end": end, "marks": marks, "ctr
 
 
 def test_heap_flat_over_1e4_samples_and_under_64k(upy):
-    texts = [tablefile.dumps(make_table("wren-demo", "N2", 48, 0.05, 500.0)),
-             tablefile.dumps(tablefile.load(os.path.join(ROOT, "firmware", "tables", "demo_n2.json")))]
+    # the largest tables the format allows (gaugecore.table.MAX_POINTS), wall model included
+    texts = [tablefile.dumps(make_table("wren-demo", gas, MAX_POINTS, 0.05, 500.0)) for gas in ("N2", "He")]
     got = upy.run_json(HEAP, files={"table0.json": texts[0], "table1.json": texts[1]}, timeout_s=300)
     assert got["samples"] >= 2 * 10000
     assert got["states"] == ["ok", "ok"]

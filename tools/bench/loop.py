@@ -36,6 +36,15 @@ build's ticks_us() counts whole milliseconds, hence N iterations per figure
   device.DEFAULT_RATE_HZ; 50 Hz heater ticks): microseconds of interpreter
   time per second of operation, idle steps included.
 
+- floor: the same per-sample work written flat in one method (class Floor:
+  the same fakes and dispatches, the real Table.convert, FastResponse.update
+  and Setpoint.update, bare comparisons for the fault checks, a linear
+  cold-junction referral): a lower bound for any controller with these
+  stages, so `goal_reachable` says whether the goal can be met at all in
+  this interpreter; also without the fast estimate and the setpoint.
+  `chain_over_floor` is what the controller's structure and its fuller
+  checks (counts, recovery, rise referral) cost on top.
+
 A figure is refused (RuntimeError) if the channel left state "ok" while it was
 timed, so no figure can silently measure a fault path.
 Usage: python tools/bench/loop.py   (about 25 s; prints one JSON line)
@@ -57,6 +66,7 @@ import time, json, gc
 from gaugecore import tablefile
 from gaugecore.channel import Channel
 from gaugecore.setpoint import Setpoint
+from gaugecore.response import FastResponse
 ticks_us = time.ticks_us
 diff = time.ticks_diff
 N = 2000
@@ -228,6 +238,111 @@ def per_second(rig):
     return t
 
 
+class Floor:
+    """The per-sample work with no structure: a floor under any implementation.
+
+    The same fakes, the same two dispatches a sample (read, reverse, settle,
+    read), the same real Table.convert, FastResponse.update and
+    Setpoint.update; everything else flat in this one method, as cheap as it
+    can be written: the fault checks as bare comparisons (no counts, no
+    recovery), the junction low-pass, a linear cold-junction referral in
+    place of RiseReferral, the reversal as two driver calls. It is not a
+    controller (nothing is judged or recorded); it bounds what one can be.
+    """
+
+    def __init__(self, fast, setpoint):
+        self.f = Fake()
+        self.table = tab
+        self.use_fast = fast
+        self.use_sp = setpoint
+        self.resp = FastResponse()
+        self.resp.configure(0.0569, 0.000104)
+        self.sp = Setpoint(Relay(), 2.0, 5.0, "below", 1000, "SP1")
+        self.due = 0
+        self.next_ms = 0
+        self.phase = 0
+        self.sign = 1
+        self.cmd_ma = 165.0
+        self.acc = 0.0
+        self.raw_c = 22.0
+        self.cj_c = 22.0
+        self.last = None
+        self.same = 0
+        self.bad = 0
+        self.on_since = 0
+        self.e0 = 0.88
+        self.s = 0.0405
+        self.pressure_pa = None
+        self.state = None
+        self.emf_mv = 0.0
+        self.seq = 0
+
+    def step(self, now):
+        if now - self.due < 0:
+            return False
+        f = self.f
+        if self.phase == 0:
+            self.raw_c = f.read_c()
+            self.acc = f.read_uv()
+            s = -self.sign
+            self.sign = s
+            f.set_polarity(s)
+            f.set_ma(self.cmd_ma)
+            self.phase = 1
+            self.due = self.next_ms = now + 5
+            return False
+        raw = (self.acc + f.read_uv()) * 0.5
+        self.phase = 0
+        self.due = self.next_ms = now + 95
+        bad = 0
+        if raw == self.last:
+            self.same += 1
+            if self.same >= 8:
+                bad = 1
+        else:
+            self.same = 1
+            self.last = raw
+        emf = raw * 0.001
+        if emf > 30.0:
+            bad = 1
+        if now - self.on_since >= 2000 and emf < 0.1 and emf > -0.1:
+            bad = 1
+        c = self.raw_c
+        cj = self.cj_c
+        d = c - cj
+        if c < -40.0 or c > 85.0 or d > 0.25 or d < -0.25:
+            bad = 1
+        self.bad = bad
+        cj += 0.0196 * d
+        self.cj_c = cj
+        emf_ref = emf + self.e0 + self.s * (cj - 22.0)
+        if self.use_fast:
+            emf_ref += self.resp.update(emf, 0.0408, now) - emf
+        p, st = self.table.convert(emf_ref)
+        self.pressure_pa = p
+        self.state = st
+        self.emf_mv = emf
+        self.seq += 1
+        if self.use_sp:
+            self.sp.update(p, st, now, None)
+        return True
+
+
+def t_floor(rig):
+    fl = rig[0]
+    s0 = fl.seq
+    now = rig[1]
+    a = ticks_us()
+    while fl.seq - s0 < N:
+        fl.step(now)
+        now = fl.next_ms
+    t = diff(ticks_us(), a) / N
+    rig[1] = now
+    if fl.state != "ok" or fl.bad:
+        raise RuntimeError("floor: went %s (bad %d) while timed" % (fl.state, fl.bad))
+    return t
+
+
 # name: (function, channel with heater ticks?)
 ITEMS = (
     ("table_us", t_table, None),
@@ -239,10 +354,16 @@ ITEMS = (
     ("stage_compensation_us", t_compensation, False),
     ("stage_fast_estimate_us", t_fast, False),
     ("stage_setpoint_us", t_setpoint, False),
+    ("floor_us", t_floor, "floor"),
+    ("floor_bare_us", t_floor, "floor-bare"),
 )
 rigs = {}
 for name, fn, heater in ITEMS:
-    if heater is not None:
+    if heater == "floor":
+        rigs[name] = [Floor(True, True), 0]
+    elif heater == "floor-bare":
+        rigs[name] = [Floor(False, False), 0]
+    elif heater is not None:
         rigs[name] = list(make(heater))
 # warm-up: the WebAssembly engine optimises the interpreter while it runs,
 # so the first passes are slower; then every item in turn, REPS times, best kept
@@ -317,9 +438,15 @@ def report(best):
         "controller_us_per_s": best["controller_us_per_s"],
         "controller_cpu_percent": best["controller_us_per_s"] * 1e-4,
         "controller_rates": "10 Hz samples, 50 Hz heater ticks, step every 5 ms, one channel",
+        "floor_us": best["floor_us"],
+        "floor_ratio": best["floor_us"] / table,
+        "floor_without_fast_estimate_and_setpoint_us": best["floor_bare_us"],
+        "floor_without_fast_estimate_and_setpoint_ratio": best["floor_bare_us"] / table,
+        "chain_over_floor": chain / best["floor_us"],
         "goal": "per-sample chain (per_sample_chain_us) <= 3 x one table lookup; "
                 "the heater tick and the per-second figure are reported, not goaled",
         "goal_met": ratio <= 3.0,
+        "goal_reachable": best["floor_us"] / table <= 3.0,
     }
 
 
