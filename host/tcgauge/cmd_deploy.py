@@ -4,7 +4,9 @@ Compiles gaugecore and drivers with mpy-cross, generates board.json, copies
 everything with mpremote and verifies every file on the board by SHA-256.
 `--dry-run` lists the files (size, SHA-256, board path) and copies nothing;
 `--verify-only` checks what is on the board against the plan.
-A failed verification names the file and exits non-zero.
+A failed verification names the file and exits non-zero. A board whose
+MicroPython heap is too small for the firmware installed as files gets a
+warning (the prepare step reads the heap's size).
 """
 
 import os
@@ -57,6 +59,9 @@ def _cmd(args):
     print("deployed %d files, %d bytes to %s; all verified by SHA-256"
           % (result["files"], result["bytes"], args.port))
     print("reset the board to start the new firmware (its heaters start with it)")
+    warning = dp.heap_warning(result["heap_bytes"])
+    if warning:
+        print("tcgauge: warning: %s" % warning, file=sys.stderr)
     return 0
 
 

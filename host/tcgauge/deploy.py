@@ -47,6 +47,10 @@ CONFIG_NAME = "board.json"
 MAX_TABLE_NAME = 24  # gaugecore.catalogue.MAX_NAME
 MPY_MAGIC = b"M\x06"  # .mpy format version 6 (MicroPython 1.19 and later, from memory)
 TIMEOUT_S = 60.0  # prepare and verify runs
+# Heap the firmware holds running when installed as .mpy files with the demo
+# tables: tools/bench/heap.py running_mpy, 212 kB (checked against a fresh
+# measurement by tests/host/test_deploy.py).
+INSTALLED_HEAP_BYTES = 212 * 1024
 COPY_S_PER_KB = 1.0  # copy timeout: TIMEOUT_S plus this per kB (the virtual board copies ~7 kB/s)
 
 # The board files a board module may import: "from boards.pico import ..." / "from boards import pico".
@@ -326,16 +330,31 @@ def verify_code(paths, force_fallback=False):
 
 
 def prepare_code(files):
-    """Board-side code: make the folders (existing ones are fine), remove X.py beside each X.mpy."""
+    """Board-side code: make the folders (existing ones are fine), remove X.py beside each X.mpy,
+    print the interpreter's whole heap ("heap N": gc.mem_free() + gc.mem_alloc(), whatever runs)."""
     dirs = sorted({f.remote.rsplit("/", 1)[0] for f in files if "/" in f.remote})
     stale = [f.remote[:-4] + ".py" for f in files if f.remote.endswith(".mpy")]
     return (
-        "import os\n"
+        "import os, gc\n"
         "for _d in %r:\n"
         " try:\n  os.mkdir(_d)\n except OSError:\n  pass\n"
         "for _s in %r:\n"
-        " try:\n  os.remove(_s)\n  print('removed', _s)\n except OSError:\n  pass\n" % (dirs, stale)
+        " try:\n  os.remove(_s)\n  print('removed', _s)\n except OSError:\n  pass\n"
+        "print('heap', gc.mem_free() + gc.mem_alloc())\n" % (dirs, stale)
     )
+
+
+def heap_warning(heap_bytes):
+    """The text when a board's heap is too small for the firmware installed as files, else None."""
+    from tcgauge.identity import LOW_HEAP_BYTES
+
+    need = INSTALLED_HEAP_BYTES + LOW_HEAP_BYTES
+    if heap_bytes is None or heap_bytes >= need:
+        return None
+    return ("this board's MicroPython heap is %d bytes; the firmware installed as files needs about %d running "
+            "and %d more for a table upload (tools/bench/heap.py): expect MemoryError; use a frozen build "
+            "(firmware/manifest.py, see 'Board memory' in hardware/README.md)"
+            % (heap_bytes, INSTALLED_HEAP_BYTES, LOW_HEAP_BYTES))
 
 
 def mpremote_command():
@@ -423,7 +442,8 @@ def deploy(port, files, progress=None, timeout_s=TIMEOUT_S):
 
     progress(stage, done, total, name) is called with stage "prepare", "copy"
     (once per file as it starts, and at the end with done == total) and "verify".
-    Returns {"files", "bytes", "removed"}; raises DeployError (naming the file) if
+    Returns {"files", "bytes", "removed", "heap_bytes"} (the board's whole heap, None if it
+    did not say); raises DeployError (naming the file) if
     mpremote fails or any file on the board differs from the plan.
     """
     report = progress or (lambda stage, done, total, name: None)
@@ -431,6 +451,7 @@ def deploy(port, files, progress=None, timeout_s=TIMEOUT_S):
     report("prepare", 0, 1, "folders")
     out = run_mpremote(port, ["exec", prepare_code(files)], timeout_s)
     removed = [line.split(" ", 1)[1] for line in out.splitlines() if line.startswith("removed ")]
+    heap = [int(line.split()[1]) for line in out.splitlines() if line.startswith("heap ")]
     report("prepare", 1, 1, "folders")
     with tempfile.TemporaryDirectory(prefix="tcgauge-deploy-") as stage:
         args = []
@@ -457,4 +478,5 @@ def deploy(port, files, progress=None, timeout_s=TIMEOUT_S):
     hashes = board_hashes(port, [f.remote for f in files], timeout_s)
     report("verify", total, total, "")
     check(files, hashes)
-    return {"files": total, "bytes": sum(f.size for f in files), "removed": removed}
+    return {"files": total, "bytes": sum(f.size for f in files), "removed": removed,
+            "heap_bytes": heap[0] if heap else None}

@@ -322,8 +322,44 @@ def test_prepare_removes_a_stale_source_that_would_shadow_the_mpy(board, deploye
     deployed = deployed[0]
     board.exec("f = open('gaugecore/units.py', 'w')\nf.write('STALE = 1\\n')\nf.close()")
     out = dp.run_mpremote(board.path, ["exec", dp.prepare_code(deployed)])
-    assert out.replace("\r", "") == "removed gaugecore/units.py\n"
+    lines = out.replace("\r", "").splitlines()
+    assert lines[0] == "removed gaugecore/units.py"
     assert "gaugecore/units.py" not in board.files()
+    # then the whole heap, gc.mem_free() + gc.mem_alloc(), as MicroPython itself counts it
+    word, size = lines[1].split()
+    board_heap = json.loads(board.exec("import gc\nprint(gc.mem_free() + gc.mem_alloc())"))
+    assert (word, len(lines)) == ("heap", 2) and int(size) == board_heap
+
+
+def test_heap_warning_names_the_need_and_the_cure():
+    from tcgauge.identity import LOW_HEAP_BYTES
+
+    assert dp.heap_warning(None) is None  # a board that did not say
+    assert dp.heap_warning(dp.INSTALLED_HEAP_BYTES + LOW_HEAP_BYTES) is None
+    text = dp.heap_warning(192 * 1024)  # about an RP2040's (hardware/README.md, "Board memory")
+    assert text == ("this board's MicroPython heap is 196608 bytes; the firmware installed as files needs about "
+                    "217088 running and 37888 more for a table upload (tools/bench/heap.py): expect MemoryError; "
+                    "use a frozen build (firmware/manifest.py, see 'Board memory' in hardware/README.md)")
+
+
+def test_deploy_warns_on_a_small_heap(capsys, monkeypatch):
+    monkeypatch.setattr(dp, "deploy", lambda port, files, progress=None: {
+        "files": len(files), "bytes": 1, "removed": [], "heap_bytes": 150000})
+    assert main(["deploy", "--port", "/dev/null", "--board", BOARD, "--firmware", FW]) == 0
+    err = capsys.readouterr().err
+    assert err.startswith("tcgauge: warning: this board's MicroPython heap is 150000 bytes; ")
+
+
+def test_installed_heap_matches_a_fresh_measurement():
+    """INSTALLED_HEAP_BYTES against tools/bench/heap.py: the .mpy install with the demo
+    tables, booted and run under the real MicroPython; within 5 %."""
+    sys.path.insert(0, os.path.join(ROOT, "tools", "bench"))
+    import heap
+
+    with tempfile.TemporaryDirectory(prefix="heap-mpy-") as tmp:
+        got = heap._run(heap._files(None), heap._mpy_tree(os.path.join(tmp, "firmware")))
+    running = max(got["after"])
+    assert abs(running - dp.INSTALLED_HEAP_BYTES) < 0.05 * dp.INSTALLED_HEAP_BYTES, running
 
 
 def test_raw_repl_protocol_bytes(board):

@@ -56,7 +56,8 @@ RP2040_HEAP_BYTES = 192 * 1024
 FAKES = os.path.join(ROOT, "tests", "drivers")
 FIRMWARE = os.path.join(ROOT, "firmware")
 
-CODE = r'''
+# the fake Pico and the heap reading, before anything of the firmware loads
+SETUP = r'''
 import sys, json, gc, asyncio
 if "/data" not in sys.path:
     sys.path.append("/data")
@@ -73,6 +74,9 @@ from boards import pico
 world = fake_machine.World(pico.PINS)
 sys.modules["machine"] = world.module()
 base = await mem()
+'''
+
+CODE = SETUP + r'''
 import main
 port = fake_machine.HostPort(budget=40)
 app = main.boot(root="/data/board/", clock=world.clock, port=port)
@@ -95,23 +99,7 @@ print(json.dumps({"base": base, "boot": boot, "after": after, "states": states, 
 '''
 
 # the code alone: the modules a boot loaded, imported and nothing built
-IMPORTS = r'''
-import sys, json, gc, asyncio
-if "/data" not in sys.path:
-    sys.path.append("/data")
-
-
-async def mem():
-    await asyncio.sleep(0)
-    gc.collect()
-    return gc.mem_alloc()
-
-
-import fake_machine
-from boards import pico
-world = fake_machine.World(pico.PINS)
-sys.modules["machine"] = world.module()
-base = await mem()
+IMPORTS = SETUP + r'''
 for name in MODULES:
     __import__(name)
 print(json.dumps({"code": await mem() - base}))
