@@ -3,7 +3,10 @@
 Compiles gaugecore and drivers with mpy-cross, generates board.json, copies
 everything with mpremote and verifies every file on the board by SHA-256.
 `--dry-run` lists the files (size, SHA-256, board path) and copies nothing;
-`--verify-only` checks what is on the board against the plan.
+`--verify-only` checks what is on the board against the plan. `--frozen` is for
+a board flashed with a frozen build (firmware/manifest.py; the way to fit a
+Pico's RAM): only main.py, board.json and the tables are copied, after the
+board's frozen firmware is found to be this version.
 A failed verification names the file and exits non-zero. A board whose
 MicroPython heap is too small for the firmware installed as files gets a
 warning (the prepare step reads the heap's size).
@@ -42,7 +45,7 @@ def _cmd(args):
         config["channels"] = args.channels
     if args.adc is not None:
         config["adc"] = args.adc
-    files = dp.plan(args.firmware, args.board, config)
+    files = dp.plan(args.firmware, args.board, config, frozen=args.frozen)
     if args.verify_only:
         dp.verify(args.port, files)
         print("verified %d files on %s by SHA-256: all match" % (len(files), args.port))
@@ -53,13 +56,13 @@ def _cmd(args):
         return 0
     bar, progress = _progress_bar()
     with bar:
-        result = dp.deploy(args.port, files, progress=progress)
+        result = dp.deploy(args.port, files, progress=progress, frozen=args.frozen)
     for name in result["removed"]:
-        print("removed stale %s (it would have shadowed the .mpy)" % name)
+        print("removed stale %s (it would have shadowed the %s)" % (name, "frozen module" if args.frozen else ".mpy"))
     print("deployed %d files, %d bytes to %s; all verified by SHA-256"
           % (result["files"], result["bytes"], args.port))
     print("reset the board to start the new firmware (its heaters start with it)")
-    warning = dp.heap_warning(result["heap_bytes"])
+    warning = None if args.frozen else dp.heap_warning(result["heap_bytes"])
     if warning:
         print("tcgauge: warning: %s" % warning, file=sys.stderr)
     return 0
@@ -72,6 +75,9 @@ def register(subparsers):
     p.add_argument("--port", required=True, help="the board's serial port (e.g. /dev/ttyACM0)")
     p.add_argument("--board", required=True, choices=dp.BOARDS, help="which board")
     p.add_argument("--dry-run", action="store_true", help="list what would be copied; copy nothing")
+    p.add_argument("--frozen", action="store_true",
+                   help="the board runs a frozen build of firmware/manifest.py: copy only main.py, board.json "
+                   "and the tables, and remove filesystem copies that would shadow the frozen packages")
     p.add_argument("--verify-only", action="store_true",
                    help="copy nothing; check the files on the board against this plan by SHA-256")
     p.add_argument("--tables", nargs="+", metavar="NAME",

@@ -36,6 +36,7 @@ import tempfile
 import threading
 
 from gaugecore import tablefile
+from gaugecore.version import VERSION
 
 from tcgauge.errors import TcgaugeError
 
@@ -43,6 +44,8 @@ log = logging.getLogger(__name__)
 
 BOARDS = ("pico", "pico_w", "esp32")
 COMPILED = ("gaugecore", "drivers")  # packages sent as .mpy
+FROZEN = ("gaugecore", "drivers", "boards")  # packages firmware/manifest.py freezes
+FROZEN_PATH = ".frozen"  # where sys.path names the frozen modules (MicroPython docs on sys.path, from memory)
 CONFIG_NAME = "board.json"
 MAX_TABLE_NAME = 24  # gaugecore.catalogue.MAX_NAME
 MPY_MAGIC = b"M\x06"  # .mpy format version 6 (MicroPython 1.19 and later, from memory)
@@ -180,13 +183,15 @@ def _table_sources(firmware_dir, names):
     return out
 
 
-def plan(firmware_dir, board, config=None):
+def plan(firmware_dir, board, config=None, frozen=False):
     """The files to put on the board, in copy order -> [PlannedFile].
 
     config: board.json keys to set over the template (e.g. {"adc": "ads1115",
     "channels": 1, "tables": ["demo_n2"]}); "tables" lists table names
     (firmware_dir/tables/<name>.json) or paths of table files (the stem is the
-    name on the board); one entry serves every channel.
+    name on the board); one entry serves every channel. frozen: the board runs
+    a frozen build (firmware/manifest.py holds gaugecore, drivers and boards),
+    so only the tables, main.py and board.json are copied.
     """
     firmware_dir = os.path.abspath(firmware_dir)
     config = dict(config or {})
@@ -209,13 +214,13 @@ def plan(firmware_dir, board, config=None):
         tables.append(PlannedFile("tables/" + name + ".json", data, path))
     files = []
     with tempfile.TemporaryDirectory(prefix="tcgauge-mpy-") as work:
-        for pkg in COMPILED:
+        for pkg in () if frozen else COMPILED:
             folder = os.path.join(firmware_dir, pkg)
             for name in _py_files(folder):
                 remote_py = pkg + "/" + name
                 data = compile_mpy(os.path.join(folder, name), remote_py, work)
                 files.append(PlannedFile(remote_py[:-3] + ".mpy", data, os.path.join(folder, name)))
-    for name in board_files(firmware_dir, board):
+    for name in [] if frozen else board_files(firmware_dir, board):
         path = os.path.join(firmware_dir, "boards", name + ".py")
         files.append(PlannedFile("boards/" + name + ".py", _read(path), path))
     files += tables
@@ -329,19 +334,41 @@ def verify_code(paths, force_fallback=False):
     return code
 
 
-def prepare_code(files):
+def prepare_code(files, frozen=False):
     """Board-side code: make the folders (existing ones are fine), remove X.py beside each X.mpy,
-    print the interpreter's whole heap ("heap N": gc.mem_free() + gc.mem_alloc(), whatever runs)."""
+    print the interpreter's whole heap ("heap N": gc.mem_free() + gc.mem_alloc(), whatever runs).
+
+    frozen: instead remove every file of gaugecore/, drivers/ and boards/ on the filesystem (it
+    would shadow the frozen module: the filesystem comes first in sys.path) and print the frozen
+    firmware's version ("frozen 0.1.0", or "frozen MISSING")."""
     dirs = sorted({f.remote.rsplit("/", 1)[0] for f in files if "/" in f.remote})
     stale = [f.remote[:-4] + ".py" for f in files if f.remote.endswith(".mpy")]
-    return (
+    code = (
         "import os, gc\n"
         "for _d in %r:\n"
         " try:\n  os.mkdir(_d)\n except OSError:\n  pass\n"
         "for _s in %r:\n"
-        " try:\n  os.remove(_s)\n  print('removed', _s)\n except OSError:\n  pass\n"
-        "print('heap', gc.mem_free() + gc.mem_alloc())\n" % (dirs, stale)
+        " try:\n  os.remove(_s)\n  print('removed', _s)\n except OSError:\n  pass\n" % (dirs, stale)
     )
+    if frozen:
+        # the frozen version, looked up in the frozen modules alone; only when it is this
+        # host's are the filesystem copies removed (else the board keeps what runs now)
+        code += (
+            "import sys\n"
+            "_p = sys.path[:]\n"
+            "sys.path[:] = [%r]\n"
+            "for _m in ('gaugecore.version', 'gaugecore'):\n"
+            " sys.modules.pop(_m, None)\n"
+            "try:\n from gaugecore.version import VERSION as _v\nexcept ImportError:\n _v = 'MISSING'\n"
+            "sys.path[:] = _p\n"
+            "print('frozen', _v)\n"
+            "for _d in (%r if _v == %r else ()):\n"
+            " try:\n  _n = os.listdir(_d)\n except OSError:\n  _n = []\n"
+            " for _f in _n:\n"
+            "  try:\n   os.remove(_d + '/' + _f)\n   print('removed', _d + '/' + _f)\n  except OSError:\n   pass\n"
+            % (FROZEN_PATH, FROZEN, VERSION)
+        )
+    return code + "print('heap', gc.mem_free() + gc.mem_alloc())\n"
 
 
 def heap_warning(heap_bytes):
@@ -437,11 +464,14 @@ def verify(port, files, timeout_s=TIMEOUT_S):
     check(files, board_hashes(port, [f.remote for f in files], timeout_s))
 
 
-def deploy(port, files, progress=None, timeout_s=TIMEOUT_S):
+def deploy(port, files, progress=None, timeout_s=TIMEOUT_S, frozen=False):
     """Copy `files` (from `plan`) to the board at `port` and verify every one by SHA-256.
 
     progress(stage, done, total, name) is called with stage "prepare", "copy"
     (once per file as it starts, and at the end with done == total) and "verify".
+    frozen: the board runs a frozen build (files from plan(..., frozen=True)); shadowing
+    copies of its packages are removed, and a board without the frozen firmware of this
+    version is refused before anything is copied.
     Returns {"files", "bytes", "removed", "heap_bytes"} (the board's whole heap, None if it
     did not say); raises DeployError (naming the file) if
     mpremote fails or any file on the board differs from the plan.
@@ -449,9 +479,18 @@ def deploy(port, files, progress=None, timeout_s=TIMEOUT_S):
     report = progress or (lambda stage, done, total, name: None)
     total = len(files)
     report("prepare", 0, 1, "folders")
-    out = run_mpremote(port, ["exec", prepare_code(files)], timeout_s)
+    out = run_mpremote(port, ["exec", prepare_code(files, frozen)], timeout_s)
     removed = [line.split(" ", 1)[1] for line in out.splitlines() if line.startswith("removed ")]
     heap = [int(line.split()[1]) for line in out.splitlines() if line.startswith("heap ")]
+    if frozen:
+        have = [line.split()[1] for line in out.splitlines() if line.startswith("frozen ")]
+        have = have[0] if have else "MISSING"
+        if have != VERSION:
+            raise DeployError("the board has %s: flash a frozen build of this version (%s) first "
+                              "(firmware/manifest.py, hardware/README.md 'Board memory'); nothing was removed "
+                              "or copied"
+                              % ("no frozen gaugecore" if have == "MISSING" else "frozen firmware " + have,
+                                 VERSION))
     report("prepare", 1, 1, "folders")
     with tempfile.TemporaryDirectory(prefix="tcgauge-deploy-") as stage:
         args = []

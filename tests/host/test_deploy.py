@@ -343,7 +343,7 @@ def test_heap_warning_names_the_need_and_the_cure():
 
 
 def test_deploy_warns_on_a_small_heap(capsys, monkeypatch):
-    monkeypatch.setattr(dp, "deploy", lambda port, files, progress=None: {
+    monkeypatch.setattr(dp, "deploy", lambda port, files, progress=None, frozen=False: {
         "files": len(files), "bytes": 1, "removed": [], "heap_bytes": 150000})
     assert main(["deploy", "--port", "/dev/null", "--board", BOARD, "--firmware", FW]) == 0
     err = capsys.readouterr().err
@@ -407,3 +407,52 @@ def test_raw_repl_protocol_bytes(board):
         assert board.error is None
     finally:
         port.close()
+
+
+# ---- a board flashed with a frozen build ------------------------------------------------
+@pytest.fixture
+def fresh_board():
+    require_tool("node")
+    b = vboard.VirtualBoard()
+    b.start()
+    try:
+        yield b
+    finally:
+        b.close(timeout_s=5)
+
+
+def test_frozen_deploy_refuses_a_board_without_the_frozen_firmware(fresh_board, capsys):
+    fresh_board.exec("import os\nos.mkdir('gaugecore')\nf = open('gaugecore/units.mpy', 'wb')\n"
+                     "f.write(b'M\\x06')\nf.close()")
+    argv = ["deploy", "--port", fresh_board.path, "--board", BOARD, "--frozen", "--firmware", FW]
+    assert main(argv) == 2
+    err = capsys.readouterr().err
+    assert err == ("tcgauge: error: the board has no frozen gaugecore: flash a frozen build of this version "
+                   "(%s) first (firmware/manifest.py, hardware/README.md 'Board memory'); nothing was removed "
+                   "or copied\n" % dp.VERSION)
+    assert "gaugecore/units.mpy" in fresh_board.files()  # what ran before is still there
+    assert "main.py" not in fresh_board.files()
+
+
+def test_frozen_deploy_copies_only_the_board_files_and_removes_shadows(fresh_board, monkeypatch, capsys):
+    # The virtual board has no frozen modules: a package in a folder of its flash (kept over
+    # the soft reset mpremote makes) that the check searches instead of .frozen stands in.
+    monkeypatch.setattr(dp, "FROZEN_PATH", "/flash/frozen_stand_in")
+    fresh_board.exec("import os\nfor d in ('frozen_stand_in', 'frozen_stand_in/gaugecore', 'gaugecore', 'drivers'):\n"
+                     " try:\n  os.mkdir(d)\n except OSError:\n  pass\n"
+                     "open('frozen_stand_in/gaugecore/__init__.py', 'w').close()\n"
+                     "f = open('frozen_stand_in/gaugecore/version.py', 'w')\nf.write(\"VERSION = %r\\n\")\nf.close()\n"
+                     "for n in ('gaugecore/units.mpy', 'drivers/relay.py'):\n"
+                     " f = open(n, 'w')\n f.write('x = 1\\n')\n f.close()" % dp.VERSION)
+    argv = ["deploy", "--port", fresh_board.path, "--board", BOARD, "--frozen", "--tables", "demo_n2",
+            "--firmware", FW]
+    assert main(argv) == 0
+    out = capsys.readouterr().out
+    for name in ("gaugecore/units.mpy", "drivers/relay.py"):
+        assert "removed stale %s (it would have shadowed the frozen module)\n" % name in out
+    files = dp.plan(FW, BOARD, {"tables": ["demo_n2"]}, frozen=True)
+    assert sorted(f.remote for f in files) == ["board.json", "main.py", "tables/demo_n2.json"]
+    on_board = fresh_board.files()
+    assert "gaugecore/units.mpy" not in on_board and "drivers/relay.py" not in on_board
+    for f in files:
+        assert on_board[f.remote] == f.data
