@@ -373,7 +373,8 @@ for _rec in (_REC_E, _REC_J, _REC_K, _REC_N, _REC_T):
 
 def _epsilon():
     """Machine epsilon: 2.2e-16 with double floats, 1.2e-7 on boards whose
-    MicroPython uses single precision (there the answers carry ~1e-4 C)."""
+    MicroPython uses single precision (there type K carries up to 0.2 uV and
+    3 mK: tests/core/test_single_precision.py)."""
     eps = 1.0
     while 1.0 + eps * 0.5 > 1.0:
         eps *= 0.5
