@@ -42,6 +42,12 @@ Budget components (standard uncertainties, in Pa):
   neighbour's). Leaving a point out doubles the local spacing, so this
   overstates the error between the points of the full table: conservative.
   It also contains the point's own scatter (counted again: conservative).
+- reproducibility: reproducibility_rel * p, the relative standard deviation
+  of repeated calibrations of the same tube in the same gas (after venting and
+  a new zero; `reproducibility_from` computes it from their tables, type A,
+  GUM 4.2.2). Without it the budget holds for this run only, and `evaluate`
+  says so in a note: a thermocouple tube's calibration moves with every zero,
+  contamination and handling (docs/physics.md s. 6).
 Correction factor CF = p_cal / p_ind (ISO 27893) where a previous table
 gave an indication p_ind for the same EMF.
 
@@ -360,7 +366,10 @@ C_BASE = "base pressure drift (rectangular)"
 C_EMF = "device EMF repeatability (type A)"
 C_EMF_RES = "device EMF resolution (rectangular)"
 C_FIT = "fit / interpolation (leave-one-out)"
-COMPONENTS = (C_REF, C_DRIFT, C_RES, C_REP, C_PORT, C_BASE, C_EMF, C_EMF_RES, C_FIT)
+C_REPRO = "reproducibility (repeated calibrations)"
+COMPONENTS = (C_REF, C_DRIFT, C_RES, C_REP, C_PORT, C_BASE, C_EMF, C_EMF_RES, C_FIT, C_REPRO)
+NO_REPRO_NOTE = ("no reproducibility term: this budget holds for this run only; repeat the calibration "
+                 "after venting and a new zero and give the spread (tcgauge calibrate --earlier)")
 
 
 def _sd_of_mean(xs):
@@ -370,8 +379,34 @@ def _sd_of_mean(xs):
     return _mean_sd(xs)[1] / math.sqrt(n)
 
 
+def reproducibility_from(tables, emfs_mv):
+    """Relative standard deviation of repeated calibrations: at each EMF of `emfs_mv` (this
+    run's points) the experimental standard deviation of the pressures the tables give
+    (GUM 4.2.2, n - 1), over their mean; the largest over the points every table covers.
+
+    tables: two or more Tables of the same tube, gas and heater current, this run's among
+    them. CalibrationError when fewer than two, or no point lies inside all of them."""
+    if len(tables) < 2:
+        raise CalibrationError("reproducibility needs two or more calibrations, %d given" % len(tables))
+    worst = None
+    for e in emfs_mv:
+        ps = []
+        for t in tables:
+            p, state = t.convert(e)
+            if state != states.OK:
+                break
+            ps.append(p)
+        else:
+            mean, sd = _mean_sd(ps)
+            rel = sd / mean
+            worst = rel if worst is None else max(worst, rel)
+    if worst is None:
+        raise CalibrationError("no calibration point lies inside every earlier table")
+    return worst
+
+
 def point_budget(p_pa, reference, ref_readings_pa, emf_readings_mv, dp_de, fit_rel,
-                 base_drift_pa=0.0, emf_resolution_mv=0.0, k=K_COVERAGE):
+                 base_drift_pa=0.0, emf_resolution_mv=0.0, k=K_COVERAGE, reproducibility_rel=0.0):
     """The uncertainty budget at one calibration point (module docstring)."""
     slope = abs(dp_de)
     rows = [
@@ -384,6 +419,7 @@ def point_budget(p_pa, reference, ref_readings_pa, emf_readings_mv, dp_de, fit_r
         (C_EMF, "A", slope * _sd_of_mean(emf_readings_mv)),
         (C_EMF_RES, "B", slope * emf_resolution_mv / SQRT12),
         (C_FIT, "B", abs(fit_rel) * p_pa),
+        (C_REPRO, "A", reproducibility_rel * p_pa),
     ]
     return Budget(p_pa, rows, k)
 
@@ -425,8 +461,14 @@ class Calibration:
 
 
 def evaluate(fit, reference, base_pa=0.0, base_drift_pa=0.0, emf_resolution_mv=0.0,
-             previous=None, k=K_COVERAGE):
-    """Budgets of every fitted point, CFs against `previous` (a Table) if given."""
+             previous=None, k=K_COVERAGE, reproducibility_rel=None):
+    """Budgets of every fitted point, CFs against `previous` (a Table) if given.
+
+    reproducibility_rel: relative standard deviation of repeated calibrations
+    (`reproducibility_from`); None leaves the term at zero with a note."""
+    if reproducibility_rel is not None and not 0.0 <= reproducibility_rel < 1.0:
+        raise CalibrationError("reproducibility must be a relative standard deviation in 0..1, not %r"
+                               % (reproducibility_rel,))
     pts = fit.points
     n = len(pts)
     budgets, p_ind, cf, notes = [], [], [], []
@@ -437,7 +479,7 @@ def evaluate(fit, reference, base_pa=0.0, base_drift_pa=0.0, emf_resolution_mv=0
             r = fit.loo_rel[j] if fit.loo_rel[j] is not None else 0.0
         slope = dp_de_pa_per_mv(fit.table, pt.emf_mv)
         budgets.append(point_budget(pt.p_ref_pa, reference, pt.ref_readings_pa, pt.emf_readings_mv,
-                                    slope, r, base_drift_pa, emf_resolution_mv, k))
+                                    slope, r, base_drift_pa, emf_resolution_mv, k, reproducibility_rel or 0.0))
         if previous is not None:
             p_old, state = previous.convert(pt.emf_mv)
             if state == states.OK:
@@ -446,6 +488,8 @@ def evaluate(fit, reference, base_pa=0.0, base_drift_pa=0.0, emf_resolution_mv=0
             else:
                 p_ind.append(None)
                 cf.append(None)
+    if reproducibility_rel is None:
+        notes.append(NO_REPRO_NOTE)
     # Common practice, no published source: keep the base pressure a decade below the
     # lowest calibration pressure, or its residual gas biases the lowest points.
     if base_pa > 0.1 * pts[0].p_ref_pa:

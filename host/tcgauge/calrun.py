@@ -219,13 +219,23 @@ def previous_table(client, ch):
 
 
 def run(client, ch, gas, points_pa, reference, chamber, clock, folder, traceability, settle_s=0.0,
-        progress=None, push=False, name=None, zero=True, collect_kw=None, info=None):
+        progress=None, push=False, name=None, zero=True, collect_kw=None, info=None,
+        reproducibility_rel=None, earlier=None):
     """The guided calibration (module docstring) -> namespace with cal, paths, zero_mv, push.
 
     points_pa: pressures to calibrate at, in the order they are set.
     collect_kw: keyword arguments for calibrate.collect_point (interval_s,
     window_s, timeout_s, floors). progress(dict) gets every step's news.
+    reproducibility_rel: stated relative standard deviation of repeated
+    calibrations; earlier: instead, Tables of earlier calibrations of this tube
+    in this gas, from which with this run's table it is computed
+    (calibrate.reproducibility_from). Neither: the budget says it lacks the term.
     """
+    if reproducibility_rel is not None and earlier:
+        raise cal.CalibrationError("give the reproducibility or the earlier calibrations, not both")
+    for t in earlier or ():
+        if t.gas != gas:
+            raise cal.CalibrationError("an earlier calibration is for %s, this one for %s" % (t.gas, gas))
     if not traceability:
         raise cal.CalibrationError("the report needs the reference's traceability statement")
     if len(points_pa) < 4:
@@ -270,9 +280,18 @@ def run(client, ch, gas, points_pa, reference, chamber, clock, folder, traceabil
                         invalid_margin=old.invalid_margin, noise_mv=old.noise_mv, wall_c=wall_c)
     if getattr(fit.table, "wall_c", wall_c) != wall_c:
         raise cal.CalibrationError("the fitted table lost its wall temperature %.2f C" % wall_c)
+    repro_note = None
+    if earlier:
+        reproducibility_rel = cal.reproducibility_from([fit.table] + list(earlier), [p.emf_mv for p in fit.points])
+        repro_note = ("reproducibility %.3g %% (relative standard deviation of %d calibrations: this one and "
+                      "%d earlier)" % (100.0 * reproducibility_rel, len(earlier) + 1, len(earlier)))
+    elif reproducibility_rel is not None:
+        repro_note = "reproducibility %.3g %% as stated by the operator" % (100.0 * reproducibility_rel)
     result = cal.evaluate(fit, reference, base_pa=base_pa, base_drift_pa=abs(base2_pa - base_pa),
                           emf_resolution_mv=EMF_RESOLUTION_MV,
-                          previous=old if old.gas == gas else None)
+                          previous=old if old.gas == gas else None, reproducibility_rel=reproducibility_rel)
+    if repro_note:
+        result.notes.append(repro_note)
     from tcgauge.calreport import write_report
 
     report_info = dict(info or {}, traceability=traceability, gas=gas, tube=old.profile)

@@ -132,6 +132,16 @@ class Display:
             self.status.stop()
 
 
+def _load_table(path):
+    from gaugecore import tablefile
+
+    try:
+        with open(path, "rb") as f:
+            return tablefile.loads(f.read())
+    except (OSError, ValueError) as exc:
+        raise TcgaugeError("--earlier %s: %s" % (path, exc))
+
+
 def _cmd(args):
     from gaugecore import units
     from tcgauge import calrun
@@ -144,6 +154,7 @@ def _cmd(args):
     if unit not in units.PA_PER_UNIT:
         raise TcgaugeError("--unit: use PA, TORR, MBAR or MICRON")
     points = parse_points(args.points, unit)
+    earlier = [_load_table(path) for path in args.earlier or ()]
     ask = ScriptInput(args.script) if args.script else input
     port = open_port(args.port)
     display = None
@@ -161,7 +172,8 @@ def _cmd(args):
         res = calrun.run(client, args.channel, args.gas, points, reference, chamber, clock, args.output,
                          args.traceability, settle_s=args.settle, progress=display, push=args.push,
                          name=args.name, zero=not args.no_zero, collect_kw=collect,
-                         info={"operator": args.operator} if args.operator else None)
+                         info={"operator": args.operator} if args.operator else None,
+                         reproducibility_rel=args.reproducibility, earlier=earlier)
     except CalibrationError as exc:
         raise TcgaugeError("calibration stopped: %s" % exc)
     finally:
@@ -207,6 +219,12 @@ def register(subparsers):
                    help="give up a point after S seconds without stability")
     p.add_argument("--no-zero", action="store_true", help="skip the vacuum zero (not recommended)")
     p.add_argument("--operator", default=None, help="name for the report")
+    rep = p.add_mutually_exclusive_group()
+    rep.add_argument("--earlier", nargs="+", metavar="TABLE",
+                     help="tables of earlier calibrations of this tube in this gas: the budget's reproducibility "
+                     "is their spread with this run (relative standard deviation)")
+    rep.add_argument("--reproducibility", type=float, default=None, metavar="REL",
+                     help="reproducibility of repeated calibrations, relative standard deviation (e.g. 0.02)")
     p.add_argument("--timeout", type=float, default=2.0, metavar="S", help="reply timeout")
     g = p.add_argument_group("reference gauge")
     g.add_argument("--ref-name", default=None, help="name in the report")

@@ -167,6 +167,51 @@ def test_budget_components_for_a_hand_worked_point():
     assert b.U_rel == pytest.approx(0.0234168, abs=2e-7)
 
 
+def test_reproducibility_adds_in_quadrature():
+    ref = Ref("hand example reference", u_rel=0.01, resolution_pa=0.01, drift_rel=0.005)
+    args = (10.0, ref, [10.0, 10.02, 9.98, 10.0], [5.000, 5.002, 4.998, 5.000])
+    kw = dict(dp_de=-20.0, fit_rel=0.004, base_drift_pa=0.001, emf_resolution_mv=0.001)
+    without = cal.point_budget(*args, **kw)
+    b = cal.point_budget(*args, reproducibility_rel=0.02, **kw)
+    assert without.component(cal.C_REPRO) == 0.0
+    assert b.component(cal.C_REPRO) == pytest.approx(0.2, rel=1e-12)  # 2 % of 10 Pa
+    # GUM 5.1.2, uncorrelated: u_c^2 = 0.013708667 Pa^2 (the hand-worked point) + 0.2^2
+    assert b.u_c_pa == pytest.approx(math.sqrt(0.013708667 + 0.04), rel=1e-7)
+
+
+def test_reproducibility_from_repeated_tables():
+    pts = [(12.0, 0.05), (10.0, 1.0), (7.0, 10.0), (3.0, 100.0), (1.0, 500.0)]
+    meta = ("N2", "wren-demo", 165.0, 0.0, "K")
+    a = Table(pts, *meta)
+    b = Table([(e, p * 1.03) for e, p in pts], *meta)  # a later run reading 3 % higher everywhere
+    c = Table([(e, p * 0.97) for e, p in pts], *meta)
+    emfs = [10.0, 7.0, 3.0]
+    # two values x and 1.03 x: s = 0.03 x / sqrt(2) (GUM 4.2.2, n - 1), mean 1.015 x
+    assert cal.reproducibility_from([a, b], emfs) == pytest.approx(0.03 / math.sqrt(2) / 1.015, rel=1e-9)
+    # x, 1.03 x, 0.97 x: s = 0.03 x, mean x
+    assert cal.reproducibility_from([a, b, c], emfs) == pytest.approx(0.03, rel=1e-9)
+    with pytest.raises(CalibrationError) as exc:
+        cal.reproducibility_from([a], emfs)
+    assert str(exc.value) == "reproducibility needs two or more calibrations, 1 given"
+    with pytest.raises(CalibrationError) as exc:
+        cal.reproducibility_from([a, b], [20.0])  # above every table's top EMF
+    assert str(exc.value) == "no calibration point lies inside every earlier table"
+
+
+def test_budget_without_reproducibility_says_so():
+    c, ref, _ = sim_calibration(seed=2)
+    assert cal.NO_REPRO_NOTE in c.notes
+    # the same conditions as sim_calibration, with a stated 2 % reproducibility
+    c2 = cal.evaluate(c.fit, ref, base_pa=0.005, base_drift_pa=0.001, emf_resolution_mv=0.0001,
+                      reproducibility_rel=0.02)
+    assert cal.NO_REPRO_NOTE not in c2.notes
+    for b, b2 in zip(c.budgets, c2.budgets):
+        assert b2.u_c_pa == pytest.approx(math.hypot(b.u_c_pa, 0.02 * b.p_pa), rel=1e-12)
+    with pytest.raises(CalibrationError) as exc:
+        cal.evaluate(c.fit, ref, reproducibility_rel=1.5)
+    assert str(exc.value) == "reproducibility must be a relative standard deviation in 0..1, not 1.5"
+
+
 def test_port_non_uniformity_split_at_100_pa():
     # ISO 3567:2011: 0.3 % below 100 Pa, 0.1 % above
     assert cal.port_u_rel(99.9) == 0.003

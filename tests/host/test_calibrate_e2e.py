@@ -27,11 +27,14 @@ import pytest
 import serial
 
 from gaugecore import tablefile
+from gaugecore.table import Table
 from gaugecore.units import PA_PER_TORR
 from tcgauge import calrun, derive, transfer
+from tcgauge.calibrate import NO_REPRO_NOTE
 from tcgauge.client import Client
 from tcgauge.link import Link
 from tcgauge.refgauge import SimReference
+from tcgauge.sim.simtable import make_table
 
 SPEED = 200
 U_REF = 0.01  # the simulated reference's certificate: 1 % (k=1), invented for the demo
@@ -190,6 +193,37 @@ def test_cli_calibrate_on_the_simulator(tmp_path, capsys):
     with open(str(out / "table.json"), "rb") as f:
         crc = tablefile.parse(f.read())[1]
     assert lines[-1] == "pushed as cal_n2 to channel 1, crc32 0x%08x verified" % crc
+
+
+def test_cli_calibrate_with_earlier_calibrations(tmp_path, capsys):
+    from tcgauge.cli import main
+
+    # an earlier calibration of the same tube in N2: the simulator's own table, 2 % high
+    earlier = make_table("wren-demo", "N2", 24, 0.05, 500.0)
+    shifted = Table([(e, p * 1.02) for e, p in earlier.points], earlier.gas, earlier.profile,
+                    earlier.heater_ma, earlier.ref_c, earlier.tc_type, source="earlier run (simulated)")
+    path = tmp_path / "earlier.json"
+    path.write_text(tablefile.dumps(shifted))
+    out = tmp_path / "cal"
+    url = "sim://?scenario=calibration&channels=1&speed=%d&seed=3" % SPEED
+    argv = ["calibrate", "--port", url, "--points", "1e-3:1:1", "--unit", "TORR", "--reference", "sim",
+            "--traceability", "simulated reference, invented", "-o", str(out), "--settle", "30",
+            "--earlier", str(path)]
+    assert main(argv) == 0
+    text = (out / "calibration.md").read_text()
+    assert "reproducibility (repeated calibrations)" in text
+    note = [x for x in text.splitlines() if x.startswith("- reproducibility ")]
+    assert len(note) == 1 and note[0].endswith("(relative standard deviation of 2 calibrations: this one and "
+                                                "1 earlier)")
+    # two runs 2 % apart give 2 % / sqrt(2) = 1.4 % (GUM 4.2.2); each run's own errors move the
+    # largest point's spread (the term is the largest over the points) somewhat either way
+    rel = float(note[0].split()[2]) / 100.0
+    assert 0.005 < rel < 0.03, note
+    assert NO_REPRO_NOTE not in text
+    with pytest.raises(SystemExit) as exc:  # argparse: one or the other
+        main(argv + ["--reproducibility", "0.02"])
+    assert exc.value.code == 2
+    assert "argument --reproducibility: not allowed with argument --earlier" in capsys.readouterr().err
 
 
 def test_cli_calibrate_stops_with_the_devices_reason(tmp_path, capsys):
