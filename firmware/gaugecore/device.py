@@ -568,13 +568,17 @@ class Device:
             raise OSError("table %s: %s" % (name, exc))
 
     def active_crc(self, n):
-        """CRC-32 text of the table channel n converts with (its canonical file)."""
-        from gaugecore import tablefile
-        from gaugecore.crc32 import crc32
+        """CRC-32 text of the table channel n converts with: its file's (Table.file_crc32), or
+        for a table made in memory that of its canonical file."""
         from gaugecore.tablexfer import crc32_text
 
-        text = tablefile.dumps(self._ch(n).table)
-        return crc32_text(crc32(text[:text.rfind('"crc32": "')].encode("utf-8")))
+        table = self._ch(n).table
+        crc = table.file_crc32
+        if crc is None:
+            from gaugecore import tablefile
+
+            crc = tablefile.parse(tablefile.dumps(table))[1]
+        return crc32_text(crc)
 
     def upload_begin(self, name, channel, nbytes, crc_text):
         """Open an upload (an unfinished one is dropped): name, channel 0..N, bytes, CRC-32."""

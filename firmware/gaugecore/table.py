@@ -136,6 +136,10 @@ class Table:
     wall_c: wall temperature (C) the table was made at, or None (not known).
     rise_slope_per_k: None, or one d ln(dT)/d T_wall (1/K) per point, in the
     points' order; it needs wall_c. Raises TableError naming the rule broken.
+    file_crc32: the CRC-32 of the file the table was read from (gaugecore.tablefile
+    sets it), None for a table made in memory. It names the table: a board
+    with single-precision floats cannot write the file's numbers back as they
+    were, so re-writing the table would not give the file's CRC.
     """
 
     def __init__(self, points, gas, profile, heater_ma, ref_c, tc_type, source="",
@@ -174,6 +178,7 @@ class Table:
         self.profile = profile
         self.tc_type = tc_type
         self.source = source
+        self.file_crc32 = None
         self.points = self._check_points(points)
         n = len(self.points)
         if wall_c is None:

@@ -239,6 +239,7 @@ def parse(text):
                       wall_c, slopes)
     except TableError as exc:
         raise TableFileError(str(exc))
+    table.file_crc32 = file_crc
     return table, file_crc
 
 

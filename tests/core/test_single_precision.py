@@ -207,3 +207,37 @@ def test_long_uptime_changes_nothing():
     b = run(3 * 10 ** 9)
     assert len(a) == 600 and a[-1][2] == "ok"
     assert a == b
+
+
+def test_table_checksums_are_the_files_in_single_precision(tmp_path):
+    """TABL:ACT? names the table a channel converts with by its file's CRC-32, the number the
+    host computes (zlib, independent of gaugecore): never by re-writing 24-bit floats, whose
+    '%.10g' text is not the file's (0.15 becomes 0.150000006)."""
+    import shutil
+    import zlib
+
+    demo = os.path.join(os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))),
+                        "firmware", "tables", "demo_n2.json")
+    with open(demo, "rb") as f:
+        data = f.read()
+    crc = zlib.crc32(data[:data.rfind(b'"crc32": "')])  # the file's own crc32 field covers this
+    (tmp_path / "tables").mkdir()
+    shutil.copy(demo, str(tmp_path / "tables" / "demo_n2.json"))
+    lim = dict(limits())
+    with single_precision():
+        from gaugecore import scpi
+        from gaugecore.assembly import build
+        from gaugecore.catalogue import Catalogue
+        from gaugecore.store import Store
+
+        bench = Bench("wren-demo", seed=1, channels=2)
+        dev = build(bench.channels, bench.clock, Catalogue(str(tmp_path / "tables")),
+                    Store(str(tmp_path / "store")), [lim, dict(lim)], default_table="demo_n2")
+        d = scpi.Dispatcher(dev, dev.ident(), 2, dev.n_setpoints())
+        dev.errors = d
+        from gaugecore import tablefile as tf32
+
+        assert tf32.dumps(tf32.loads(data)) != data.decode()  # the hazard is real in single precision
+    assert d.handle_line("TABL:CRC? 'demo_n2'") == '"0x%08x"' % crc
+    assert d.handle_line("TABL:ACT?") == '"0x%08x","0x%08x"' % (crc, crc)
+    assert d.handle_line("SYST:ERR?") == '0,"No error"'
