@@ -241,3 +241,72 @@ def test_table_checksums_are_the_files_in_single_precision(tmp_path):
     assert d.handle_line("TABL:CRC? 'demo_n2'") == '"0x%08x"' % crc
     assert d.handle_line("TABL:ACT?") == '"0x%08x","0x%08x"' % (crc, crc)
     assert d.handle_line("SYST:ERR?") == '0,"No error"'
+
+
+def vacuum_zero(single):
+    """The vacuum zero of one channel at the Larkspur base (static, 0.02 Pa): its result dict."""
+    with core(single):
+        from gaugecore import tablefile as tf
+        from gaugecore.channel import Channel
+
+        table = tf.loads(TEXT)
+        bench = Bench("wren-demo", scenario=chamber.static(chamber.LARKSPUR.base_pressure_pa), seed=0,
+                      channels=1)
+        c = bench.channels[0]
+        ch = Channel(0, c.tc, c.cj, c.heater, c.relays, table, limits())
+    zero = []
+    clock = bench.clock
+    while clock.ticks_ms() < 600000:
+        now = clock.ticks_ms()
+        if now >= 120000 and not zero:
+            zero.append(ch.start_zero(now))
+        ch.step(now)
+        if ch.next_ms > clock.ticks_ms():
+            clock.sleep_ms(ch.next_ms - clock.ticks_ms())
+    z = zero[0]
+    assert z.state == "done", z.reason
+    return z.result.to_dict()
+
+
+def test_vacuum_zero_in_single_precision():
+    single, double = vacuum_zero(True), vacuum_zero(False)
+    # the current that gives the nominal EMF and the identified heat balance: the same to
+    # 20 and 100 ppm (measured: 2 ppm); issue 4's regulation allows 500 ppm of current
+    assert single["time_ms"] == double["time_ms"]
+    assert single["heater_ma"] == pytest.approx(double["heater_ma"], rel=2e-5)
+    assert single["emf_mv"] == pytest.approx(double["emf_mv"], rel=2e-5)
+    for key in ("c_e_j_per_mv", "g_e_w_per_mv", "a2_w_per_mv2", "tau_s"):
+        assert single[key] == pytest.approx(double[key], rel=1e-4), key
+
+
+def fault_run(single, sim_fault):
+    """(first fault time after the onset in ms, its name, state 3 s after the fault is gone)."""
+    with core(single):
+        from gaugecore import tablefile as tf
+        from gaugecore.channel import Channel
+
+        table = tf.loads(TEXT)
+        bench = Bench("wren-demo", scenario=chamber.static(1.33), seed=0, channels=1)
+        c = bench.channels[0]
+        ch = Channel(0, c.tc, c.cj, c.heater, c.relays, table, limits())
+    t_on, t_off = 30000, 33000
+    bench.inject(sim_fault, 0, at_s=t_on / 1000.0, clear_at_s=t_off / 1000.0)
+    first = None
+    clock = bench.clock
+    while clock.ticks_ms() < t_off + 3000:
+        now = clock.ticks_ms()
+        ch.step(now)
+        if now < t_on:
+            assert ch.state == "ok" or now < 10000, (now, ch.state, ch.fault)
+        elif first is None and ch.state == "fault":
+            first = (now - t_on, ch.fault)
+        clock.sleep_ms(max(1, ch.next_ms - clock.ticks_ms()))
+    return first[0], first[1], ch.state
+
+
+@pytest.mark.parametrize("sim_fault", ["heater-open", "heater-short", "tc-open", "tc-short", "adc-fail",
+                                       "adc-stuck", "cj-fail"])
+def test_faults_in_single_precision(sim_fault):
+    single, double = fault_run(True, sim_fault), fault_run(False, sim_fault)
+    assert single == double  # the same fault, found at the same millisecond, the same recovery
+    assert single[0] <= 1000  # issue 4: every fault within 1 s
