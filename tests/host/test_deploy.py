@@ -179,8 +179,7 @@ def test_a_table_file_given_by_path_goes_under_its_stem(tmp_path):
 
 
 # ---- a real deploy to the virtual board ------------------------------------------------
-@pytest.fixture(scope="module")
-def board():
+def _running_board():
     require_tool("node")
     b = vboard.VirtualBoard()
     b.start()
@@ -189,6 +188,11 @@ def board():
     finally:
         b.close(timeout_s=5)
         assert b.interp.proc.poll() is not None  # the interpreter is gone: nothing leaks
+
+
+@pytest.fixture(scope="module")
+def board():
+    yield from _running_board()
 
 
 @pytest.fixture(scope="module")
@@ -412,13 +416,8 @@ def test_raw_repl_protocol_bytes(board):
 # ---- a board flashed with a frozen build ------------------------------------------------
 @pytest.fixture
 def fresh_board():
-    require_tool("node")
-    b = vboard.VirtualBoard()
-    b.start()
-    try:
-        yield b
-    finally:
-        b.close(timeout_s=5)
+    """A board of its own, with nothing deployed."""
+    yield from _running_board()
 
 
 def test_frozen_deploy_refuses_a_board_without_the_frozen_firmware(fresh_board, capsys):
