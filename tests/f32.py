@@ -81,7 +81,8 @@ class _Round(ast.NodeTransformer):
     def visit_Call(self, node):
         self.generic_visit(node)
         f = node.func
-        if isinstance(f, ast.Attribute) and f.attr == "loads" and isinstance(f.value, ast.Name) and f.value.id == "json":
+        if (isinstance(f, ast.Attribute) and f.attr == "loads" and isinstance(f.value, ast.Name)
+                and f.value.id == "json"):
             return _call("_deep32", node)
         return _call("_r32", node)
 

@@ -405,6 +405,12 @@ def reproducibility_from(tables, emfs_mv):
     return worst
 
 
+def check_reproducibility(rel):
+    """CalibrationError unless rel is None or a relative standard deviation in 0..1."""
+    if rel is not None and not 0.0 <= rel < 1.0:
+        raise CalibrationError("reproducibility must be a relative standard deviation in 0..1, not %r" % (rel,))
+
+
 def point_budget(p_pa, reference, ref_readings_pa, emf_readings_mv, dp_de, fit_rel,
                  base_drift_pa=0.0, emf_resolution_mv=0.0, k=K_COVERAGE, reproducibility_rel=0.0):
     """The uncertainty budget at one calibration point (module docstring)."""
@@ -466,9 +472,7 @@ def evaluate(fit, reference, base_pa=0.0, base_drift_pa=0.0, emf_resolution_mv=0
 
     reproducibility_rel: relative standard deviation of repeated calibrations
     (`reproducibility_from`); None leaves the term at zero with a note."""
-    if reproducibility_rel is not None and not 0.0 <= reproducibility_rel < 1.0:
-        raise CalibrationError("reproducibility must be a relative standard deviation in 0..1, not %r"
-                               % (reproducibility_rel,))
+    check_reproducibility(reproducibility_rel)
     pts = fit.points
     n = len(pts)
     budgets, p_ind, cf, notes = [], [], [], []

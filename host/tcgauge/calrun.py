@@ -233,6 +233,7 @@ def run(client, ch, gas, points_pa, reference, chamber, clock, folder, traceabil
     """
     if reproducibility_rel is not None and earlier:
         raise cal.CalibrationError("give the reproducibility or the earlier calibrations, not both")
+    cal.check_reproducibility(reproducibility_rel)  # before the run, not after it
     for t in earlier or ():
         if t.gas != gas:
             raise cal.CalibrationError("an earlier calibration is for %s, this one for %s" % (t.gas, gas))

@@ -14,10 +14,11 @@ import contextlib
 import math
 import os
 import random
-import sys
 
 import pytest
 import thermocouples
+from f32 import r32, single_precision
+from support import ROOT
 
 from gaugecore import tablefile
 from gaugecore import thermocouple as tc64
@@ -26,8 +27,6 @@ from tcgauge.sim.bench import Bench
 from tcgauge.sim.rig import limits
 from tcgauge.sim.simtable import make_table
 
-sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
-from f32 import r32, single_precision  # noqa: E402
 
 TORR = 101325.0 / 760.0  # NIST SP 811 B.8
 TEXT = tablefile.dumps(make_table("wren-demo", "N2", 64, 0.05, 500.0))
@@ -216,8 +215,7 @@ def test_table_checksums_are_the_files_in_single_precision(tmp_path):
     import shutil
     import zlib
 
-    demo = os.path.join(os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))),
-                        "firmware", "tables", "demo_n2.json")
+    demo = os.path.join(ROOT, "firmware", "tables", "demo_n2.json")
     with open(demo, "rb") as f:
         data = f.read()
     crc = zlib.crc32(data[:data.rfind(b'"crc32": "')])  # the file's own crc32 field covers this
