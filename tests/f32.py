@@ -21,6 +21,8 @@ alone (MicroPython's are exact too).
     with single_precision():
         from gaugecore.table import Table      # the single-precision core
     # outside the block, `gaugecore` is the double-precision one again
+    with single_precision(("gaugecore", "drivers", "boards")):
+        main = load_file("firmware/main.py", "board_main")   # the whole board
 
 Objects made inside the block keep their single-precision modules.
 """
@@ -37,7 +39,7 @@ import struct
 import sys
 
 FIRMWARE = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))), "firmware")
-PACKAGE = "gaugecore"
+PACKAGES = ("gaugecore",)  # the default; the board's packages are "drivers" and "boards"
 _S = struct.Struct("<f")
 
 
@@ -113,8 +115,11 @@ class _Loader(importlib.abc.Loader):
 
 
 class _Finder(importlib.abc.MetaPathFinder):
+    def __init__(self, packages):
+        self.packages = packages
+
     def find_spec(self, name, path, target=None):
-        if name != PACKAGE and not name.startswith(PACKAGE + "."):
+        if not _ours(name, self.packages):
             return None
         base = os.path.join(FIRMWARE, *name.split("."))
         if os.path.isdir(base):
@@ -126,23 +131,33 @@ class _Finder(importlib.abc.MetaPathFinder):
         return None
 
 
-def _ours(name):
-    return name == PACKAGE or name.startswith(PACKAGE + ".")
+def _ours(name, packages):
+    return any(name == p or name.startswith(p + ".") for p in packages)
+
+
+def load_file(path, name):
+    """The single-precision module of one source file (firmware/main.py), under `name`."""
+    spec = importlib.util.spec_from_file_location(name, path, loader=_Loader(path))
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
 
 
 @contextlib.contextmanager
-def single_precision():
-    """Inside: `import gaugecore...` gives the single-precision core (module docstring)."""
-    saved = {k: v for k, v in sys.modules.items() if _ours(k)}
+def single_precision(packages=PACKAGES):
+    """Inside: `import gaugecore...` (and the other `packages` of firmware/) gives the
+    single-precision code (module docstring)."""
+    saved = {k: v for k, v in sys.modules.items() if _ours(k, packages)}
     for k in saved:
         del sys.modules[k]
-    finder = _Finder()
+    finder = _Finder(packages)
     sys.meta_path.insert(0, finder)
     try:
-        importlib.import_module(PACKAGE)
+        for p in packages:
+            importlib.import_module(p)
         yield
     finally:
         sys.meta_path.remove(finder)
-        for k in [k for k in sys.modules if _ours(k)]:
+        for k in [k for k in sys.modules if _ours(k, packages)]:
             del sys.modules[k]
         sys.modules.update(saved)
