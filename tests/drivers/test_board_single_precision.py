@@ -7,6 +7,8 @@ Sources: SBAS501 / SBAS444 / DS22039 / SNOS758 formulas via the fake chips (as i
 test_board_main.py); IEEE 488.2 10.14 (*IDN?), SCPI-1999 Vol. 1 21.8 (error queue).
 """
 
+import contextlib
+import importlib.util
 import os
 import shutil
 import sys
@@ -31,18 +33,15 @@ def run_board(root, single, seconds=12.0):
     world = fake_machine.World(pico.PINS, temp_c=22.0)
     sys.modules["machine"] = world.module()
     try:
-        if single:
-            with single_precision(PACKAGES):
-                main = load_file(os.path.join(FIRMWARE, "main.py"), "tcgauge_board_main_f32")
-                port = fake_machine.HostPort()
-                app = main.boot(root=root, clock=world.clock, port=port)
-        else:
-            import importlib.util
-
-            spec = importlib.util.spec_from_file_location("tcgauge_board_main_f64",
-                                                          os.path.join(FIRMWARE, "main.py"))
-            main = importlib.util.module_from_spec(spec)
-            spec.loader.exec_module(main)
+        path = os.path.join(FIRMWARE, "main.py")
+        with single_precision(PACKAGES) if single else contextlib.nullcontext():
+            # boot imports lazily: it must run inside the block too
+            if single:
+                main = load_file(path, "tcgauge_board_main_f32")
+            else:
+                spec = importlib.util.spec_from_file_location("tcgauge_board_main_f64", path)
+                main = importlib.util.module_from_spec(spec)
+                spec.loader.exec_module(main)
             port = fake_machine.HostPort()
             app = main.boot(root=root, clock=world.clock, port=port)
 
